@@ -1,0 +1,61 @@
+"""Names of series and lines, as practitioners write them.
+
+* Series by lower level: Lyman, Balmer, Paschen, Brackett, Pfund, Humphreys,
+  then "series 7", "series 8", ...
+* Lines of H, D, T: Greek letters by Δn up to ε (Lyα, Hα, Paβ, Brγ, Pfδ,
+  Huε), then the upper level (H8, H9, Pa9, Br10, ...).  For lower levels
+  n' >= 7 the radio style is used: H109α, D110β, He109α (Rydberg He), C109α.
+* Hydrogen-like ions: Lyman lines as "Fe XXVI Lyα"; other lines by their
+  wavelength in Å rounded to an integer in the medium of the reference-database
+  convention (air from 2000 Å to 20000 Å, vacuum otherwise), e.g. "He II 4686",
+  "He II 1640", "C VI 182"; radio style for n' >= 7 ("He II 218α").
+"""
+
+import numpy as np
+
+__all__ = ["series_name", "GREEK", "line_label", "line_labels"]
+
+GREEK = "αβγδεζηθικλμνξοπρστυφχψω"
+_SERIES = {1: "Lyman", 2: "Balmer", 3: "Paschen", 4: "Brackett", 5: "Pfund", 6: "Humphreys"}
+_PREFIX = {1: "Ly", 2: "H", 3: "Pa", 4: "Br", 5: "Pf", 6: "Hu"}
+RADIO_FROM = 7
+
+
+def series_name(n_lower):
+    """Series name for a lower level."""
+    return _SERIES.get(int(n_lower), f"series {int(n_lower)}")
+
+
+def _greek(dn):
+    return GREEK[dn - 1] if dn <= len(GREEK) else f"[Δn={dn}]"
+
+
+def line_label(species, n_lower, n_upper, wavelength_conv_angstrom=None):
+    """Label of one line; ``species`` is a `~linefinder.species.Species`."""
+    nl, nu = int(n_lower), int(n_upper)
+    dn = nu - nl
+    if nl >= RADIO_FROM:
+        return f"{species.radio_prefix}{nl}{_greek(dn)}"
+    hydrogen = species.Z == 1 or species.kind == "rydberg"
+    if hydrogen:
+        base = species.symbol if species.symbol != "H" else ""
+        prefix = _PREFIX[nl]
+        if base:
+            # D and T: Dα, Dβ (Balmer), DLyα, DPaα ...; Rydberg atoms use radio style
+            if species.kind == "rydberg":
+                return f"{species.radio_prefix}{nl}{_greek(dn)}"
+            prefix = base if nl == 2 else base + prefix
+        if dn <= 5:
+            return f"{prefix}{_greek(dn)}"
+        return f"{prefix}{nu}"
+    if nl == 1:
+        return f"{species.name} Ly{_greek(dn)}"
+    if wavelength_conv_angstrom is None or not np.isfinite(wavelength_conv_angstrom):
+        return f"{species.name} {nu}-{nl}"
+    return f"{species.name} {int(round(float(wavelength_conv_angstrom)))}"
+
+
+def line_labels(species, n_lower, n_upper, wavelength_conv_angstrom):
+    """Vectorised `line_label`."""
+    return np.array([line_label(species, a, b, c) for a, b, c in
+                     zip(n_lower, n_upper, wavelength_conv_angstrom)], dtype=object)
