@@ -13,7 +13,7 @@
 
 import numpy as np
 
-__all__ = ["series_name", "GREEK", "line_label", "line_labels"]
+__all__ = ["series_name", "GREEK", "line_label", "line_labels", "ascii_label"]
 
 GREEK = "αβγδεζηθικλμνξοπρστυφχψω"
 _SERIES = {1: "Lyman", 2: "Balmer", 3: "Paschen", 4: "Brackett", 5: "Pfund", 6: "Humphreys"}
@@ -59,3 +59,15 @@ def line_labels(species, n_lower, n_upper, wavelength_conv_angstrom):
     """Vectorised `line_label`."""
     return np.array([line_label(species, a, b, c) for a, b, c in
                      zip(n_lower, n_upper, wavelength_conv_angstrom)], dtype=object)
+
+
+_GREEK_NAMES = ["alpha", "beta", "gamma", "delta", "epsilon", "zeta", "eta", "theta", "iota",
+                "kappa", "lambda", "mu", "nu", "xi", "omicron", "pi", "rho", "sigma", "tau",
+                "upsilon", "phi", "chi", "psi", "omega"]
+_ASCII = {g: name for g, name in zip(GREEK, _GREEK_NAMES)}
+_ASCII.update({"Δ": "D", "–": "-", "Å": "A", "µ": "u"})
+
+
+def ascii_label(text):
+    """ASCII form of a label for formats that allow no other text (FITS): Hα -> Halpha."""
+    return "".join(_ASCII.get(ch, ch) for ch in str(text))

@@ -79,6 +79,28 @@ def table_to_records(table):
     return out
 
 
+_FITS_KEYS = {"medium": "MEDIUM", "air_formula": "AIRFORM", "constants": "CONSTANT",
+              "linefinder_version": "LFVERS", "frame": "FRAME", "redshift": "REDSHIFT"}
+
+
+def _ascii_strings(table):
+    """Copy of `table` whose text columns and metadata are ASCII (FITS allows no other)."""
+    from .names import ascii_label
+
+    out = table.copy(copy_data=True)
+    for name in out.colnames:
+        col = out[name]
+        if col.dtype.kind in "UO":
+            out[name] = [ascii_label(v) if v is not np.ma.masked else "" for v in col]
+    meta = dict(table.meta)
+    out.meta = {}
+    for key, card in _FITS_KEYS.items():
+        if meta.get(key) is not None:
+            out.meta[card] = ascii_label(meta[key]) if isinstance(meta[key], str) else meta[key]
+    out.meta["LFMETA"] = ascii_label(json.dumps(meta, default=json_default, ensure_ascii=False))
+    return out
+
+
 def write_table(table, path, *, force=False, fmt=None):
     """Write `table` to `path`; the suffix chooses the format unless `fmt` is given."""
     path = check_writable(path, force=force)
@@ -100,6 +122,8 @@ def write_table(table, path, *, force=False, fmt=None):
             out = table
             if fmt in ("ascii.csv", "ascii.tab"):
                 out = Table(table)
+            elif fmt == "fits":
+                out = _ascii_strings(table)
             out.write(tmp, format=fmt, overwrite=True)
         os.replace(tmp, path)
     finally:
