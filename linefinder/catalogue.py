@@ -22,7 +22,7 @@ from .doppler import describe_shift, wavelength_factor
 from .errors import AccuracyWarning, QuantumNumberError
 from .levels import level_label
 from .medium import AIR_MIN_NM, NIST_AIR_RANGE_NM, _formula, conventional_wavelength, vacuum_to_air
-from .names import line_labels, series_name
+from .names import line_labels, series_names
 from .species import parse_species
 from .transitions import fine_components, multiplets
 
@@ -34,7 +34,7 @@ RYDBERG_MIN_N = 10
 CATALOGUE_COLUMNS = ["species", "label", "series", "n_lower", "l_lower", "j_lower", "n_upper",
                      "l_upper", "j_upper", "wavelength_vacuum", "wavelength_air", "wavenumber",
                      "frequency", "energy", "a_ul", "f_lu", "g_lower", "g_upper"]
-_CACHE_FORMAT = 1
+_CACHE_FORMAT = 2
 
 
 def cache_dir():
@@ -85,7 +85,16 @@ def _pairs(lower, upper):
 
 
 def _rest_arrays(sp, lower, upper, fine):
-    """Rest-frame arrays of one species: positions (Hz) and atomic data."""
+    """Rest-frame arrays of one species: positions (Hz), atomic data, labels."""
+    arrays = _atomic_arrays(sp, lower, upper, fine)
+    rest_vac_nm = K.C / arrays["frequency"] * 1e9
+    conv = conventional_wavelength(rest_vac_nm * u.nm).to_value(u.AA)
+    arrays["label"] = line_labels(sp, arrays["n_lower"], arrays["n_upper"], conv)
+    arrays["series"] = series_names(arrays["n_lower"])
+    return arrays
+
+
+def _atomic_arrays(sp, lower, upper, fine):
     nl, nu = _pairs(lower, upper)
     if fine:
         c = fine_components(sp, nu, nl)
@@ -286,13 +295,11 @@ def _species_table(sp, arrays, *, fine, factor, formula, air_conditions, wavelen
     wl_nm, freq_obs, rel, count = wl_nm[keep], freq_obs[keep], rel[keep], count[keep]
     rest_vac_nm = K.C / arrays["frequency"] * 1e9
     air = vacuum_to_air(wl_nm * u.nm, formula=formula, conditions=air_conditions).to_value(u.nm)
-    conv = conventional_wavelength(rest_vac_nm * u.nm, formula=formula).to_value(u.AA)
     n = len(wl_nm)
     t = QTable()
-    t["species"] = np.full(n, sp.name, dtype=object).astype(str)
-    base_labels = line_labels(sp, arrays["n_lower"], arrays["n_upper"], conv)
-    t["label"] = base_labels.astype(str) if n else np.array([], dtype=str)
-    t["series"] = np.array([series_name(v) for v in arrays["n_lower"]], dtype=str)
+    t["species"] = np.full(n, sp.name)
+    t["label"] = arrays["label"]
+    t["series"] = arrays["series"]
     t["n_lower"] = arrays["n_lower"].astype(int)
     for which in ("lower", "upper"):
         if which == "upper":

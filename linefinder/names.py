@@ -13,7 +13,7 @@
 
 import numpy as np
 
-__all__ = ["series_name", "GREEK", "line_label", "line_labels", "ascii_label"]
+__all__ = ["series_name", "GREEK", "line_label", "line_labels", "series_names", "ascii_label"]
 
 GREEK = "αβγδεζηθικλμνξοπρστυφχψω"
 _SERIES = {1: "Lyman", 2: "Balmer", 3: "Paschen", 4: "Brackett", 5: "Pfund", 6: "Humphreys"}
@@ -56,9 +56,23 @@ def line_label(species, n_lower, n_upper, wavelength_conv_angstrom=None):
 
 
 def line_labels(species, n_lower, n_upper, wavelength_conv_angstrom):
-    """Vectorised `line_label`."""
-    return np.array([line_label(species, a, b, c) for a, b, c in
-                     zip(n_lower, n_upper, wavelength_conv_angstrom)], dtype=object)
+    """Vectorised `line_label` (hydrogen labels depend only on n, so each is made once)."""
+    nl = np.asarray(n_lower, dtype=np.int64)
+    nu = np.asarray(n_upper, dtype=np.int64)
+    conv = np.asarray(wavelength_conv_angstrom, dtype=float)
+    wl_key = np.zeros(len(nl)) if (species.Z == 1 or species.kind == "rydberg") else np.rint(conv)
+    keys = (nl * 4096 + nu) * 1.0e7 + np.where(np.isfinite(wl_key), wl_key, -1)
+    uniq, first, inverse = np.unique(keys, return_index=True, return_inverse=True)
+    made = np.array([line_label(species, nl[i], nu[i], conv[i]) for i in first], dtype=str)
+    return made[inverse] if len(made) else np.array([], dtype=str)
+
+
+def series_names(n_lower):
+    """Vectorised `series_name`."""
+    nl = np.asarray(n_lower, dtype=np.int64)
+    uniq, inverse = np.unique(nl, return_inverse=True)
+    return np.array([series_name(v) for v in uniq], dtype=str)[inverse] if len(nl) else \
+        np.array([], dtype=str)
 
 
 _GREEK_NAMES = ["alpha", "beta", "gamma", "delta", "epsilon", "zeta", "eta", "theta", "iota",

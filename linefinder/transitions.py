@@ -43,16 +43,81 @@ def oscillator_strength(nu_hz, a_ul, g_upper, g_lower):
     return g_upper / g_lower * a_ul * _F_FACTOR / nu_hz ** 2
 
 
-def _state_energies(sp, n, l, twoj):
-    """Binding energies (Hz) of many states, each distinct state computed once."""
-    key = (n.astype(np.int64) * 8192 + l.astype(np.int64)) * 2 + (twoj > 2 * l)
-    uniq, inverse = np.unique(key, return_inverse=True)
-    nu = uniq // 2 // 8192
-    lu = (uniq // 2) % 8192
-    up = uniq % 2
-    tj = 2 * lu + np.where(up == 1, 1, -1)
-    e = binding_energy_hz(sp, nu, lu, tj / 2.0)
-    return e[inverse]
+class _LevelGrid:
+    """Binding energies E[n, l, s] (Hz) of every state a set of lines needs (s: j = l -/+ 1/2)."""
+
+    def __init__(self, sp, n_max, l_max):
+        n = np.arange(1, n_max + 1)[:, None, None]
+        l = np.arange(l_max + 1)[None, :, None]
+        side = np.arange(2)[None, None, :]
+        n, l, side = np.broadcast_arrays(n, l, side)
+        valid = (l < n) & ((l > 0) | (side == 1))
+        self.energy = np.full((n_max + 1, l_max + 1, 2), np.nan)
+        twoj = 2 * l[valid] + np.where(side[valid] == 1, 1, -1)
+        self.energy[n[valid], l[valid], side[valid]] = binding_energy_hz(sp, n[valid], l[valid],
+                                                                         twoj / 2.0)
+
+    def __call__(self, n, l, twoj):
+        return self.energy[n, l, (twoj > 2 * l).astype(np.intp)]
+
+
+_ROW_MEMO = {}
+
+
+def _radial_rows(nu, nl):
+    """One row per (pair, lower l, branch): pair index, l_upper, l_lower, radial integral.
+
+    The integrals do not depend on the species (they are in units of a0/Z with
+    infinite mass), so the last few results are kept for reuse by the next species.
+    """
+    key = (nu.tobytes(), nl.tobytes())
+    hit = _ROW_MEMO.get(key)
+    if hit is not None:
+        return hit
+    rows = _compute_radial_rows(nu, nl)
+    if len(_ROW_MEMO) >= 4:
+        _ROW_MEMO.pop(next(iter(_ROW_MEMO)))
+    _ROW_MEMO[key] = rows
+    return rows
+
+
+def _compute_radial_rows(nu, nl):
+    X, Y = dipole_radial_integrals(nu, nl)
+    pair = np.repeat(np.arange(len(nu)), nl)
+    starts = np.repeat(np.cumsum(nl) - nl, nl)
+    l_lo = np.arange(len(pair)) - starts
+    has = l_lo >= 1
+    # upper l = l_lo + 1 uses X_{l_lo + 1}; upper l = l_lo - 1 uses Y_{l_lo}
+    p = np.concatenate([pair, pair[has]])
+    lu = np.concatenate([l_lo + 1, l_lo[has] - 1])
+    ll = np.concatenate([l_lo, l_lo[has]])
+    rad = np.concatenate([X[pair, l_lo + 1], Y[pair[has], l_lo[has]]])
+    for arr in (p, lu, ll, rad):
+        arr.flags.writeable = False
+    return p, lu, ll, rad
+
+
+def _doublet_split(lu, ll):
+    """The (2j_upper, 2j_lower, fraction) of each LS doublet component, per row."""
+    big = np.maximum(lu, ll)
+    upper_is_big = lu == big
+    out = []
+    for dj_big, dj_small, frac in ((+1, -1, (big + 1) / (2 * big + 1)),
+                                   (-1, -1, 1 / ((2 * big + 1) * (2 * big - 1))),
+                                   (-1, -3, (big - 1) / (2 * big - 1))):
+        tj_big = 2 * big + dj_big
+        tj_small = 2 * big + dj_small
+        ok = (frac > 0) & (tj_small >= 1)
+        out.append((np.where(upper_is_big, tj_big, tj_small), np.where(upper_is_big, tj_small, tj_big),
+                    frac, ok))
+    return big, out
+
+
+def _dipole_unit_si(sp):
+    """(e a_mu x dipole factor)^2 in C^2 m^2: converts line strengths from atomic units."""
+    a_mu = K.BOHR_M / (sp.reduced_mass_ratio * sp.charge)
+    dip = (sp.core_mass_me + sp.charge) / (sp.core_mass_me + 1.0)
+    return (sc.e * a_mu * dip) ** 2
 
 
 def fine_components(species, n_upper, n_lower, *, sort=True):
@@ -65,43 +130,16 @@ def fine_components(species, n_upper, n_lower, *, sort=True):
     sp = parse_species(species)
     nu = np.atleast_1d(np.asarray(n_upper, dtype=np.int64))
     nl = np.atleast_1d(np.asarray(n_lower, dtype=np.int64))
-    X, Y = dipole_radial_integrals(nu, nl)
-    # radial rows: one per (pair, lower l)
-    pair = np.repeat(np.arange(len(nu)), nl)
-    starts = np.repeat(np.cumsum(nl) - nl, nl)
-    l_lo = np.arange(len(pair)) - starts
-    rows = []
-    # upper l = l_lo + 1 uses X_{l_lo + 1}; upper l = l_lo - 1 uses Y_{l_lo}
-    r_up = X[pair, l_lo + 1]
-    rows.append((pair, l_lo + 1, l_lo, r_up))
-    has = l_lo >= 1
-    r_dn = Y[pair[has], l_lo[has]]
-    rows.append((pair[has], l_lo[has] - 1, l_lo[has], r_dn))
-    p = np.concatenate([r[0] for r in rows])
-    lu = np.concatenate([r[1] for r in rows])
-    ll = np.concatenate([r[2] for r in rows])
-    rad = np.concatenate([r[3] for r in rows])
-    big = np.maximum(lu, ll)
-    # fine-structure split: (j_big, j_small) with fractions of the multiplet
-    combos = [(+1, -1, (big + 1) / (2 * big + 1)),
-              (-1, -1, 1 / ((2 * big + 1) * (2 * big - 1))),
-              (-1, -3, (big - 1) / (2 * big - 1))]
-    parts = []
-    for dj_big, dj_small, frac in combos:
-        tj_big = 2 * big + dj_big          # 2j of the state with l = big
-        tj_small = 2 * big + dj_small      # 2j of the state with l = big - 1
-        ok = (frac > 0) & (tj_small >= 1)
-        upper_is_big = lu == big
-        tj_u = np.where(upper_is_big, tj_big, tj_small)
-        tj_l = np.where(upper_is_big, tj_small, tj_big)
-        parts.append((p[ok], lu[ok], tj_u[ok], ll[ok], tj_l[ok], (frac * 2 * big * rad ** 2)[ok]))
+    p, lu, ll, rad = _radial_rows(nu, nl)
+    big, split = _doublet_split(lu, ll)
+    parts = [(p[ok], lu[ok], tju[ok], ll[ok], tjl[ok], (frac * 2 * big * rad ** 2)[ok])
+             for tju, tjl, frac, ok in split]
     p, lu, tju, ll, tjl, s_au = (np.concatenate([q[i] for q in parts]) for i in range(6))
     n_u = nu[p]
     n_l = nl[p]
-    freq = _state_energies(sp, n_u, lu, tju) - _state_energies(sp, n_l, ll, tjl)
-    a_mu = K.BOHR_M / (sp.reduced_mass_ratio * sp.charge)
-    dip = (sp.core_mass_me + sp.charge) / (sp.core_mass_me + 1.0)
-    s_si = s_au * (sc.e * a_mu * dip) ** 2
+    grid = _LevelGrid(sp, int(nu.max()), int(lu.max()))
+    freq = grid(n_u, lu, tju) - grid(n_l, ll, tjl)
+    s_si = s_au * _dipole_unit_si(sp)
     g_u = tju + 1
     g_l = tjl + 1
     a_ul = einstein_a(freq, s_si, g_u)
@@ -115,18 +153,41 @@ def fine_components(species, n_upper, n_lower, *, sort=True):
 
 
 def multiplets(species, n_upper, n_lower):
-    """n -> n' multiplet values: frequency (Hz, g_u A_u weighted), A, f, S, g_u, g_l."""
+    """n -> n' multiplet values: frequency (Hz, g_u A_u weighted), A, f, S, g_u, g_l.
+
+    Sums over the same fine-structure components as `fine_components`, without
+    materialising them.
+    """
+    sp = parse_species(species)
     nu = np.atleast_1d(np.asarray(n_upper, dtype=np.int64))
     nl = np.atleast_1d(np.asarray(n_lower, dtype=np.int64))
-    comp = fine_components(species, nu, nl, sort=False)
     m = len(nu)
-    w = comp["g_upper"] * comp["A"]
-    wsum = np.bincount(comp["pair"], weights=w, minlength=m)
-    freq = np.bincount(comp["pair"], weights=w * comp["frequency"], minlength=m) / wsum
+    p, lu, ll, rad = _radial_rows(nu, nl)
+    big, split = _doublet_split(lu, ll)
+    grid = _LevelGrid(sp, int(nu.max()), int(lu.max()))
+    n_u = nu[p]
+    n_l = nl[p]
+    s_row = 2 * big * rad ** 2
+    sum_s = np.zeros(m)
+    sum_nu3s = np.zeros(m)     # proportional to sum g_u A_u
+    sum_nu4s = np.zeros(m)     # for the weighted mean frequency
+    sum_nus = np.zeros(m)      # proportional to sum g_l f_l
+    count = np.zeros(m, dtype=np.int64)
+    for tju, tjl, frac, ok in split:
+        sel = ok
+        pp = p[sel]
+        freq = grid(n_u[sel], lu[sel], tju[sel]) - grid(n_l[sel], ll[sel], tjl[sel])
+        s_c = (frac * s_row)[sel]
+        nu3s = freq ** 3 * s_c
+        sum_s += np.bincount(pp, weights=s_c, minlength=m)
+        sum_nu3s += np.bincount(pp, weights=nu3s, minlength=m)
+        sum_nu4s += np.bincount(pp, weights=nu3s * freq, minlength=m)
+        sum_nus += np.bincount(pp, weights=freq * s_c, minlength=m)
+        count += np.bincount(pp, minlength=m)
+    unit = _dipole_unit_si(sp)
     g_u = 2.0 * nu ** 2
     g_l = 2.0 * nl ** 2
-    a_ul = wsum / g_u
-    s_tot = np.bincount(comp["pair"], weights=comp["S"], minlength=m)
-    f_lu = np.bincount(comp["pair"], weights=comp["g_lower"] * comp["f"], minlength=m) / g_l
-    return {"frequency": freq, "A": a_ul, "f": f_lu, "S": s_tot, "g_upper": g_u, "g_lower": g_l,
-            "components": np.bincount(comp["pair"], minlength=m)}
+    a_ul = _A_FACTOR * sum_nu3s * unit / g_u
+    f_lu = _F_FACTOR * _A_FACTOR * sum_nus * unit / g_l
+    return {"frequency": sum_nu4s / sum_nu3s, "A": a_ul, "f": f_lu, "S": sum_s * unit,
+            "g_upper": g_u, "g_lower": g_l, "components": count}
