@@ -1,0 +1,311 @@
+"""Detect and measure emission and absorption features.
+
+For each contiguous segment of a prepared spectrum:
+
+1. noise from the file's uncertainty or `continuum.robust_noise`;
+2. instrument FWHM in pixels from the resolving power R (file, option, or
+   estimated from the narrowest strong features), FWHM = x / R;
+3. a first continuum, then matched filtering of the residual with Gaussian
+   kernels of 1, 2, 4, 8 and 16 instrument FWHM (SNR = sum(g w r) /
+   sqrt(sum(g^2 w)), w = 1/sigma^2), candidates at local extrema above the
+   threshold;
+4. a second continuum with the candidates' pixels excluded and knots wider
+   than the broadest of them, so broad lines keep their wings;
+5. joint profile fits of overlapping candidates (`profiles.fit_group`), then
+   up to three more rounds of detection on the residual after the fitted
+   model, which deblends close groups into their components;
+6. rejection of single-pixel spikes (cosmic rays: fitted FWHM far below the
+   instrument's) and of features at segment edges; flags for blends, edges,
+   masked pixels and poor fits.
+"""
+
+from dataclasses import dataclass, field
+
+import numpy as np
+from astropy import units as u
+from astropy.table import QTable
+from scipy.ndimage import correlate1d
+from scipy.signal import find_peaks
+
+from .continuum import fit_continuum, robust_noise
+from .errors import SpectrumFormatError
+from .profiles import GAUSS_FWHM, fit_group
+from .spectrum import prepare, segments
+
+__all__ = ["find_features", "FeatureResult", "FEATURE_COLUMNS", "EQW_CONVENTION"]
+
+FEATURE_COLUMNS = ["center", "center_err", "fwhm", "fwhm_err", "amplitude", "flux", "flux_err",
+                   "eqw", "snr", "kind", "flags"]
+EQW_CONVENTION = "W = integral of (1 - F/Fc): positive for absorption, negative for emission"
+SCALES = (1, 2, 4, 8, 16)
+DEFAULT_FWHM_PX = 3.0
+
+
+@dataclass
+class FeatureResult:
+    """Features of one spectrum with what was used to find them."""
+    features: QTable
+    spectrum: object
+    continuum: np.ndarray
+    noise: np.ndarray
+    meta: dict = field(default_factory=dict)
+
+
+def _matched_snr(r, w, fwhm_px):
+    sig = fwhm_px / GAUSS_FWHM
+    half = int(np.ceil(3 * sig))
+    k = np.exp(-0.5 * (np.arange(-half, half + 1) / sig) ** 2)
+    num = correlate1d(w * r, k, mode="constant")
+    den = correlate1d(w, k ** 2, mode="constant")
+    with np.errstate(invalid="ignore", divide="ignore"):
+        snr = np.where(den > 0, num / np.sqrt(den), 0.0)
+        amp = np.where(den > 0, num / den, 0.0)
+    return snr, amp
+
+
+def _candidates(r, w, fwhm_px, threshold, kinds, n):
+    out = []
+    for scale in SCALES:
+        f = fwhm_px * scale
+        if f > n / 4:
+            break
+        snr, amp = _matched_snr(r, w, f)
+        for sign, kind in ((1, "emission"), (-1, "absorption")):
+            if kind not in kinds:
+                continue
+            peaks, _ = find_peaks(sign * snr, height=threshold, distance=max(1, int(f / 2)))
+            out.extend((int(p), f, abs(float(snr[p])), float(amp[p])) for p in peaks)
+    out.sort(key=lambda c: -c[2])
+    chosen = []
+    for c in out:
+        if all(abs(c[0] - d[0]) > 0.75 * min(c[1], d[1]) and
+               not (abs(c[0] - d[0]) < 0.5 * max(c[1], d[1]) and np.sign(c[3]) == np.sign(d[3]))
+               for d in chosen):
+            chosen.append(c)
+    return chosen
+
+
+def _groups(feats):
+    feats = sorted(feats, key=lambda f: f["px"])
+    groups = []
+    for f in feats:
+        if groups and f["px"] - groups[-1][-1]["px"] < 1.5 * max(f["fwhm_px"], groups[-1][-1]["fwhm_px"]):
+            groups[-1].append(f)
+        else:
+            groups.append([f])
+    return groups
+
+
+def _fit_groups(groups, x, r, sig, good, lo, hi, dx):
+    model = np.zeros_like(r)
+    for g in groups:
+        span = max(f["fwhm_px"] for f in g)
+        a = max(lo, int(min(f["px"] for f in g) - 3 * span) - 2)
+        b = min(hi, int(max(f["px"] for f in g) + 3 * span) + 3)
+        sel = np.arange(a, b)
+        sel = sel[good[sel]]
+        if len(sel) < 3 * len(g) + 3:
+            for f in g:
+                f["fit"] = None
+            continue
+        local_dx = float(np.median(dx[sel]))
+        fits = fit_group(x[sel], r[sel], sig[sel], [x[f["px"]] for f in g],
+                         [f["fwhm_px"] * local_dx / GAUSS_FWHM for f in g],
+                         [f["amp0"] for f in g], min_sigma=0.25 * local_dx)
+        for f, res in zip(g, fits):
+            f["fit"] = res
+            f["group"] = len(g)
+            if res["ok"] and np.isfinite(res["center"]):
+                from .profiles import _gauss
+
+                s = res["fwhm"] / GAUSS_FWHM
+                if res["profile"] == "gaussian":
+                    model[a:b] += res["amplitude"] * np.exp(-0.5 * ((x[a:b] - res["center"]) / s) ** 2)
+                else:
+                    from scipy.special import voigt_profile
+
+                    model[a:b] += res["flux"] * voigt_profile(x[a:b] - res["center"],
+                                                              res["gauss_fwhm"] / GAUSS_FWHM,
+                                                              res["lorentz_fwhm"] / 2)
+    return model
+
+
+def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorption"),
+                  knot_px=None, min_separation_px=None):
+    """Find and measure features; returns a `FeatureResult`.
+
+    Parameters
+    ----------
+    spec : SpectrumData (prepared or not)
+    snr : detection threshold in sigma (matched filter), default 5
+    resolution : resolving power R; default from the file, else estimated
+    kinds : which of "emission", "absorption" to report
+    knot_px : continuum knot spacing in pixels (default: from the line widths)
+    """
+    spec = prepare(spec)
+    x_all = spec.axis.value
+    y_all = spec.flux.value
+    good_all = ~spec.mask
+    if spec.uncertainty is not None:
+        sig_all = spec.uncertainty.value.copy()
+        noise_source = spec.meta.get("noise_source") or "file"
+    else:
+        sig_all = np.full(len(y_all), np.nan)
+        noise_source = "estimated: 1.4826 MAD of pixel differences / sqrt(2) (no uncertainty in file)"
+    res_source = "option" if resolution else None
+    R = resolution or spec.meta.get("resolution")
+    if R and not res_source:
+        res_source = "file"
+    segs = segments(spec)
+    if not segs:
+        raise SpectrumFormatError(f"{spec.source}: no contiguous stretch of valid pixels long enough")
+    cont_all = np.full(len(y_all), np.nan)
+    rows = []
+    estimated_widths = []
+    for lo, hi in segs:
+        y = y_all[lo:hi]
+        x = x_all[lo:hi]
+        good = good_all[lo:hi]
+        if np.isfinite(sig_all[lo:hi]).any() and spec.uncertainty is not None:
+            sig = np.where(np.isfinite(sig_all[lo:hi]), sig_all[lo:hi], np.inf)
+        else:
+            sig = robust_noise(y, good)
+            sig_all[lo:hi] = sig
+        dx = np.gradient(x)
+        if R:
+            fwhm_px = float(np.median(x / (R * dx)))
+        else:
+            fwhm_px = DEFAULT_FWHM_PX
+        fwhm_px = max(fwhm_px, 1.0)
+        seg_rows, cont = _segment(x, y, sig, good, dx, fwhm_px, snr, kinds, knot_px, lo)
+        if not R:
+            narrow = [f["fwhm"] / np.median(dx) for f in seg_rows
+                      if f["group"] == 1 and f["snr"] > 10 and "poor_fit" not in f["flags"]]
+            estimated_widths.extend(narrow)
+        cont_all[lo:hi] = cont
+        rows.extend(seg_rows)
+    if not R and len(estimated_widths) >= 3:
+        est_px = float(np.median(estimated_widths))
+        R = float(np.median(x_all / (est_px * np.abs(np.gradient(x_all)))))
+        res_source = "estimated from the narrowest strong features"
+        return find_features(spec, snr=snr, resolution=R, kinds=kinds, knot_px=knot_px,
+                             min_separation_px=min_separation_px)._with(res_source)
+    table = _table(rows, spec, cont_all, kinds)
+    table.meta.update({"source": spec.source, "medium": spec.medium,
+                       "medium_source": spec.meta.get("medium_source"),
+                       "unit": str(spec.axis.unit), "noise_source": noise_source,
+                       "resolution": R, "resolution_source": res_source or "default 3-pixel FWHM",
+                       "snr_threshold": snr, "eqw_convention": EQW_CONVENTION,
+                       "n_pixels": len(y_all), "n_masked": int(spec.mask.sum())})
+    return FeatureResult(features=table, spectrum=spec, continuum=cont_all, noise=sig_all,
+                         meta=dict(table.meta))
+
+
+def _with(self, res_source):
+    self.features.meta["resolution_source"] = res_source
+    self.meta["resolution_source"] = res_source
+    return self
+
+
+FeatureResult._with = _with
+
+
+def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
+    n = len(y)
+    w = np.where(good & np.isfinite(sig) & (sig > 0), 1.0 / np.where(sig > 0, sig, 1) ** 2, 0.0)
+    base_knots = knot_px or max(40, 12 * fwhm_px)
+    cont, _ = fit_continuum(y, sig, good, knot_px=min(base_knots, max(n // 3, 8)))
+    cands = _candidates(y - cont, w, fwhm_px, threshold, kinds, n)
+    exclude = np.zeros(n, dtype=bool)
+    longest = 0
+    for px, f, _, _ in cands:
+        a, b = max(0, int(px - 1.5 * f)), min(n, int(px + 1.5 * f) + 1)
+        exclude[a:b] = True
+        longest = max(longest, b - a)
+    if cands:
+        knots = max(base_knots, 2.0 * longest)
+        cont, _ = fit_continuum(y, sig, good, knot_px=min(knots, max(n // 2, 8)), exclude=exclude)
+    r = y - cont
+    feats = []
+    model = np.zeros(n)
+    for round_ in range(4):
+        new = _candidates(r - model, w, fwhm_px, threshold, kinds, n)
+        added = False
+        for px, f, s, amp in new:
+            if any(abs(px - g["px"]) < 0.7 * min(f, g["fwhm_px"]) for g in feats):
+                continue
+            feats.append({"px": px, "fwhm_px": f, "snr_det": s, "amp0": amp, "fit": None,
+                          "group": 1, "spike": False})
+            added = True
+        if not added:
+            break
+        model = _fit_groups(_groups(feats), x, r, sig, good, 0, n, dx)
+        # move candidate pixels to the fitted centres for the next grouping
+        for g in feats:
+            fit = g["fit"]
+            if fit and fit["ok"] and np.isfinite(fit["center"]):
+                g["px"] = int(np.clip(np.searchsorted(x, fit["center"]), 0, n - 1))
+                g["fwhm_px"] = max(fit["fwhm"] / np.median(dx), 1.0)
+    rows = []
+    for g in feats:
+        fit = g["fit"]
+        if fit is None or not np.isfinite(fit["center"]):
+            continue
+        g["snr_fit"] = abs(fit["flux"]) / fit["flux_err"] if fit["flux_err"] > 0 else 0.0
+        fpx = fit["fwhm"] / max(np.median(dx), 1e-300)
+        spike = (fpx < 0.8) or (fwhm_px >= 1.5 and fpx < 0.45 * fwhm_px)
+        g["spike"] = spike
+        if spike:
+            continue
+        ipx = int(np.clip(np.searchsorted(x, fit["center"]), 0, n - 1))
+        from_edge = min(ipx, n - 1 - ipx)
+        if from_edge < 0.5 * fpx or fit["center"] < x[0] or fit["center"] > x[-1]:
+            continue
+        if g["snr_fit"] < 0.5 * threshold:
+            continue
+        flags = []
+        if g["group"] > 1:
+            flags.append("blend")
+        if from_edge < 2 * fpx:
+            flags.append("edge")
+        a, b = max(0, int(ipx - fpx)), min(n, int(ipx + fpx) + 1)
+        if not good[a:b].all():
+            flags.append("masked")
+        if (not fit["ok"]) or fit["chi2_red"] > 3 or not np.isfinite(fit["center_err"]):
+            flags.append("poor_fit")
+        if fit.get("at_bound"):
+            flags.append("unresolved")
+        c = float(np.interp(fit["center"], x, cont))
+        eqw = -fit["flux"] / c if c != 0 else np.nan
+        eqw_err = abs(fit["flux_err"] / c) if c != 0 else np.nan
+        rows.append({**fit, "flags": ",".join(flags), "snr": g["snr_fit"], "snr_det": g["snr_det"],
+                     "kind": "emission" if fit["amplitude"] > 0 else "absorption",
+                     "eqw": eqw, "eqw_err": eqw_err, "continuum": c, "pixel": ipx + offset,
+                     "group": g["group"], "spike": False})
+    return rows, cont
+
+
+def _table(rows, spec, cont_all, kinds):
+    unit = spec.axis.unit
+    fu = spec.flux.unit
+    rows = [r for r in rows if r["kind"] in kinds]
+    rows.sort(key=lambda r: r["center"])
+    t = QTable()
+    col = lambda k: np.array([r[k] for r in rows], dtype=float)  # noqa: E731
+    t["center"] = col("center") * unit
+    t["center_err"] = col("center_err") * unit
+    t["fwhm"] = col("fwhm") * unit
+    t["fwhm_err"] = col("fwhm_err") * unit
+    t["amplitude"] = col("amplitude") * fu
+    t["flux"] = col("flux") * fu * unit
+    t["flux_err"] = col("flux_err") * fu * unit
+    t["eqw"] = col("eqw") * unit
+    t["eqw_err"] = col("eqw_err") * unit
+    t["snr"] = col("snr")
+    t["kind"] = np.array([r["kind"] for r in rows], dtype=str) if rows else np.array([], dtype=str)
+    t["flags"] = np.array([r["flags"] for r in rows], dtype=str) if rows else np.array([], dtype=str)
+    t["profile"] = np.array([r["profile"] for r in rows], dtype=str) if rows else np.array([], dtype=str)
+    t["continuum"] = col("continuum") * fu
+    t["chi2_red"] = col("chi2_red")
+    t["pixel"] = np.array([r["pixel"] for r in rows], dtype=int)
+    return t
