@@ -28,20 +28,9 @@ class _Parser(argparse.ArgumentParser):
 
 
 def _subcommands():
-    from . import cli_catalogue
+    from . import cli_catalogue, cli_spectrum
 
-    modules = [cli_catalogue]
-    try:
-        from . import cli_spectrum
-        modules.append(cli_spectrum)
-    except ImportError as exc:  # pragma: no cover - only when a part is missing
-        log.debug("spectrum commands unavailable: %s", exc)
-    try:
-        from . import cli_identify
-        modules.append(cli_identify)
-    except ImportError as exc:  # pragma: no cover
-        log.debug("identification commands unavailable: %s", exc)
-    return modules
+    return [cli_catalogue, cli_spectrum]
 
 
 def build_parser():

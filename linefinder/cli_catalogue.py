@@ -90,10 +90,12 @@ def flatten_lines(table, unit):
     return out
 
 
-def _emit(table, args, *, default_columns):
+def _emit(table, args, *, default_columns, title=None):
     fmt = args.format
     if args.output:
         path = write_table(table, args.output, force=args.force)
+        if title:
+            print(title, file=sys.stderr)
         print(f"wrote {len(table)} rows to {path}", file=sys.stderr)
         return 0
     if fmt == "csv":
@@ -111,8 +113,10 @@ def _emit(table, args, *, default_columns):
             if view[name].dtype.kind == "f":
                 view[name].format = ".6g" if name.startswith(("a_ul", "f_lu", "frequency")) else ".8g"
         meta = table.meta
-        print(f"# {len(table)} lines; medium {meta.get('medium')}, air formula "
-              f"{meta.get('air_formula')}, {meta.get('constants')}; frame {meta.get('frame')}")
+        if title is None:
+            title = (f"# {len(table)} lines; medium {meta.get('medium')}, air formula "
+                     f"{meta.get('air_formula')}, {meta.get('constants')}; frame {meta.get('frame')}")
+        print(title)
         for line in view.pformat(max_lines=-1, max_width=-1):
             print(line)
     return 0

@@ -37,8 +37,9 @@ __all__ = ["find_features", "FeatureResult", "FEATURE_COLUMNS", "EQW_CONVENTION"
 FEATURE_COLUMNS = ["center", "center_err", "fwhm", "fwhm_err", "amplitude", "flux", "flux_err",
                    "eqw", "snr", "kind", "flags"]
 EQW_CONVENTION = "W = integral of (1 - F/Fc): positive for absorption, negative for emission"
-SCALES = (1, 2, 4, 8, 16)
+SCALES = (1, 2, 4, 8, 16, 32, 64)
 DEFAULT_FWHM_PX = 3.0
+MAX_GROUP = 6
 
 
 @dataclass
@@ -64,69 +65,129 @@ def _matched_snr(r, w, fwhm_px):
 
 
 def _candidates(r, w, fwhm_px, threshold, kinds, n):
-    out = []
+    """Peaks of the matched-filter SNR at each kernel width, narrowest first.
+
+    A peak at a wider kernel replaces the narrower ones it overlaps only when
+    its SNR is 1.3 times theirs or more (a truly broad feature); otherwise
+    neighbouring narrow lines keep their own identity (a Gaussian line up to
+    about four kernel widths broad is still found at the narrow kernel, with
+    >= 70 % of the optimal SNR, and the profile fit finds its real width).
+    """
+    accepted = []
     for scale in SCALES:
         f = fwhm_px * scale
-        if f > n / 4:
+        if f > n / 8 and scale > 1:
             break
         snr, amp = _matched_snr(r, w, f)
+        found = []
         for sign, kind in ((1, "emission"), (-1, "absorption")):
             if kind not in kinds:
                 continue
-            peaks, _ = find_peaks(sign * snr, height=threshold, distance=max(1, int(f / 2)))
-            out.extend((int(p), f, abs(float(snr[p])), float(amp[p])) for p in peaks)
-    out.sort(key=lambda c: -c[2])
-    chosen = []
-    for c in out:
-        if all(abs(c[0] - d[0]) > 0.75 * min(c[1], d[1]) and
-               not (abs(c[0] - d[0]) < 0.5 * max(c[1], d[1]) and np.sign(c[3]) == np.sign(d[3]))
-               for d in chosen):
-            chosen.append(c)
-    return chosen
+            # prominence, not just height: a noise wiggle on the wing of a strong line is
+            # high but not prominent; a real neighbour stands out of the saddle between them
+            peaks, _ = find_peaks(np.maximum(sign * snr, 0), height=threshold,
+                                  prominence=max(3.0, 0.6 * threshold), distance=max(1, f / 2))
+            found.extend((int(p), f, abs(float(snr[p])), float(amp[p])) for p in peaks)
+        found.sort(key=lambda c: -c[2])
+        for c in found:
+            near = [d for d in accepted if abs(c[0] - d[0]) < 0.75 * max(c[1], d[1])]
+            if not near:
+                accepted.append(c)
+            elif all(np.sign(d[3]) == np.sign(c[3]) and d[1] < c[1] for d in near) and \
+                    c[2] > 1.3 * max(d[2] for d in near):
+                accepted = [d for d in accepted if d not in near] + [c]
+    accepted.sort(key=lambda c: -c[2])
+    return accepted
+
+
+def _inflated_weights(r, model, sig, good, w, feats):
+    """Weights for detection on the residual after the model.
+
+    Where the model leaves structure (a profile that is not Gaussian), the
+    local RMS of the normalised residual exceeds 1 and weights drop by its
+    square: a new feature must stand out of what the model already fails to
+    explain, not just out of the photon noise.
+    """
+    z = np.where(good & np.isfinite(sig) & (sig > 0), (r - model) / np.where(sig > 0, sig, 1), 0.0)
+    widths = [f["fwhm_px"] for f in feats] or [5.0]
+    win = int(max(5, 4 * np.median(widths)))
+    from scipy.ndimage import uniform_filter1d
+
+    rms = np.sqrt(uniform_filter1d(z ** 2, size=win, mode="nearest"))
+    return w / np.maximum(rms, 1.0) ** 2
 
 
 def _groups(feats):
     feats = sorted(feats, key=lambda f: f["px"])
     groups = []
     for f in feats:
-        if groups and f["px"] - groups[-1][-1]["px"] < 1.5 * max(f["fwhm_px"], groups[-1][-1]["fwhm_px"]):
+        if groups and len(groups[-1]) < MAX_GROUP and \
+                f["px"] - groups[-1][-1]["px"] < 1.5 * max(f["fwhm_px"], groups[-1][-1]["fwhm_px"]):
             groups[-1].append(f)
         else:
             groups.append([f])
     return groups
 
 
+def _group_model(g, x, a, b):
+    from scipy.special import voigt_profile
+
+    out = np.zeros(b - a)
+    for f in g:
+        res = f.get("fit")
+        if not res or not res["ok"] or not np.isfinite(res["center"]):
+            continue
+        s = res["fwhm"] / GAUSS_FWHM
+        if res["profile"] == "gaussian":
+            out += res["amplitude"] * np.exp(-0.5 * ((x[a:b] - res["center"]) / s) ** 2)
+        else:
+            out += res["flux"] * voigt_profile(x[a:b] - res["center"], res["gauss_fwhm"] / GAUSS_FWHM,
+                                               res["lorentz_fwhm"] / 2)
+    return out
+
+
 def _fit_groups(groups, x, r, sig, good, lo, hi, dx):
-    model = np.zeros_like(r)
+    """Fit every group; a second pass refits each with its neighbours' models subtracted."""
+    windows = []
     for g in groups:
         span = max(f["fwhm_px"] for f in g)
         a = max(lo, int(min(f["px"] for f in g) - 3 * span) - 2)
         b = min(hi, int(max(f["px"] for f in g) + 3 * span) + 3)
-        sel = np.arange(a, b)
-        sel = sel[good[sel]]
-        if len(sel) < 3 * len(g) + 3:
-            for f in g:
-                f["fit"] = None
-            continue
-        local_dx = float(np.median(dx[sel]))
-        fits = fit_group(x[sel], r[sel], sig[sel], [x[f["px"]] for f in g],
-                         [f["fwhm_px"] * local_dx / GAUSS_FWHM for f in g],
-                         [f["amp0"] for f in g], min_sigma=0.25 * local_dx)
-        for f, res in zip(g, fits):
-            f["fit"] = res
-            f["group"] = len(g)
-            if res["ok"] and np.isfinite(res["center"]):
-                from .profiles import _gauss
-
-                s = res["fwhm"] / GAUSS_FWHM
-                if res["profile"] == "gaussian":
-                    model[a:b] += res["amplitude"] * np.exp(-0.5 * ((x[a:b] - res["center"]) / s) ** 2)
-                else:
-                    from scipy.special import voigt_profile
-
-                    model[a:b] += res["flux"] * voigt_profile(x[a:b] - res["center"],
-                                                              res["gauss_fwhm"] / GAUSS_FWHM,
-                                                              res["lorentz_fwhm"] / 2)
+        windows.append((a, b))
+    model = np.zeros_like(r)
+    for passes in range(2):
+        if passes == 1:
+            crowded = [i for i, (a, b) in enumerate(windows)
+                       if any(j != i and windows[j][0] < b and windows[j][1] > a
+                              for j in range(len(windows)))]
+            if not crowded:
+                break
+        else:
+            crowded = range(len(groups))
+        for i in crowded:
+            g = groups[i]
+            a, b = windows[i]
+            own = _group_model(g, x, a, b) if passes else 0.0
+            others = model[a:b] - own
+            sel = np.arange(a, b)
+            sel = sel[good[sel]]
+            if len(sel) < 3 * len(g) + 3:
+                for f in g:
+                    f["fit"] = None
+                continue
+            local_dx = float(np.median(dx[sel]))
+            prev = [f.get("fit") for f in g]
+            fits = fit_group(x[sel], r[sel] - (others[sel - a] if passes else 0.0), sig[sel],
+                             [x[f["px"]] if not (passes and p and p["ok"]) else p["center"]
+                              for f, p in zip(g, prev)],
+                             [f["fwhm_px"] * local_dx / GAUSS_FWHM for f in g],
+                             [f["amp0"] for f in g], min_sigma=0.25 * local_dx)
+            if len(fits) != len(g):
+                continue
+            for f, res in zip(g, fits):
+                f["fit"] = res
+                f["group"] = len(g)
+            model[a:b] = others + _group_model(g, x, a, b)
     return model
 
 
@@ -210,58 +271,127 @@ def _with(self, res_source):
 FeatureResult._with = _with
 
 
+def _exclusion(feats, n, fallback, half_widths=2.5):
+    """Pixels to keep out of the continuum fit: +/- `half_widths` FWHM of every feature."""
+    exclude = np.zeros(n, dtype=bool)
+    longest = 0
+    for f in feats:
+        fit = f.get("fit")
+        width = f["fwhm_px"] if not (fit and np.isfinite(fit.get("fwhm", np.nan))) else \
+            max(f["fwhm_px"], 1.0)
+        half = half_widths * width if fit else 1.5 * fallback(f)
+        a, b = max(0, int(f["px"] - half)), min(n, int(f["px"] + half) + 1)
+        exclude[a:b] = True
+        longest = max(longest, b - a)
+    return exclude, longest
+
+
+def _new_feats(cands, feats):
+    added = []
+    for px, f, s, amp in cands:
+        if any(abs(px - g["px"]) < 0.7 * min(f, g["fwhm_px"]) for g in feats + added):
+            continue
+        added.append({"px": px, "fwhm_px": f, "snr_det": s, "amp0": amp, "fit": None, "group": 1})
+    return added
+
+
+def _sync(feats, x, dx):
+    """Move candidates to their fitted centres and widths."""
+    n = len(x)
+    for g in feats:
+        fit = g["fit"]
+        if fit and fit["ok"] and np.isfinite(fit["center"]):
+            g["px"] = int(np.clip(np.searchsorted(x, fit["center"]), 0, n - 1))
+            g["fwhm_px"] = max(fit["fwhm"] / np.median(dx), 1.0)
+            g["amp0"] = fit["amplitude"]
+
+
+def _split_wide(feats, x, r, sig, good, dx, fwhm_px, n):
+    """Try two components where one wide component fits badly (an unresolved pair)."""
+    changed = False
+    for g in list(feats):
+        fit = g["fit"]
+        if not fit or g["group"] != 1 or not fit["ok"] or fit["chi2_red"] < 1.5:
+            continue
+        if g["fwhm_px"] < 1.6 * fwhm_px:
+            continue
+        half = 0.25 * g["fwhm_px"]
+        a = {"px": int(max(0, g["px"] - half)), "fwhm_px": g["fwhm_px"] / 2, "snr_det": g["snr_det"],
+             "amp0": fit["amplitude"], "fit": None, "group": 1}
+        b = dict(a, px=int(min(n - 1, g["px"] + half)))
+        lo = max(0, int(g["px"] - 3 * g["fwhm_px"]))
+        hi = min(n, int(g["px"] + 3 * g["fwhm_px"]) + 1)
+        sel = np.arange(lo, hi)
+        sel = sel[good[sel]]
+        if len(sel) < 12:
+            continue
+        chi_one = fit["chi2_red"] * max(len(sel) - 5, 1)
+        trial = [a, b]
+        _fit_groups([trial], x, r, sig, good, 0, n, dx)
+        if any(t["fit"] is None or not t["fit"]["ok"] for t in trial):
+            continue
+        chi_two = trial[0]["fit"]["chi2_red"] * max(len(sel) - 8, 1)
+        if chi_one - chi_two > 10 + 3 * np.log(len(sel)):
+            feats.remove(g)
+            feats.extend(trial)
+            changed = True
+    return changed
+
+
 def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
     n = len(y)
     w = np.where(good & np.isfinite(sig) & (sig > 0), 1.0 / np.where(sig > 0, sig, 1) ** 2, 0.0)
     base_knots = knot_px or max(40, 12 * fwhm_px)
     cont, _ = fit_continuum(y, sig, good, knot_px=min(base_knots, max(n // 3, 8)))
-    cands = _candidates(y - cont, w, fwhm_px, threshold, kinds, n)
-    exclude = np.zeros(n, dtype=bool)
-    longest = 0
-    for px, f, _, _ in cands:
-        a, b = max(0, int(px - 1.5 * f)), min(n, int(px + 1.5 * f) + 1)
-        exclude[a:b] = True
-        longest = max(longest, b - a)
-    if cands:
-        knots = max(base_knots, 2.0 * longest)
-        cont, _ = fit_continuum(y, sig, good, knot_px=min(knots, max(n // 2, 8)), exclude=exclude)
+    feats = []
+    # continuum and features refine each other: wide features push the knots apart
+    for _ in range(2):
+        feats = _new_feats(_candidates(y - cont, w, fwhm_px, threshold, kinds, n), [])
+        if not feats:
+            break
+        _fit_groups(_groups(feats), x, y - cont, sig, good, 0, n, dx)
+        _sync(feats, x, dx)
+        broad = [f for f in feats if f["fit"] and f["fit"]["amplitude"] < 0 and
+                 f["fwhm_px"] > 6 * fwhm_px]
+        if broad:
+            # broad absorption (stellar Balmer lines): the continuum is the upper envelope,
+            # with knots wider than the wings and clipping that is harder below than above
+            exclude, _ = _exclusion(broad, n, lambda f: f["fwhm_px"], half_widths=1.0)
+            knots = max(base_knots, 3.0 * max(f["fwhm_px"] for f in broad), n / 8)
+            cont, _ = fit_continuum(y, sig, good, knot_px=min(knots, max(n // 2, 8)),
+                                    exclude=exclude, clip=(3.5, 1.5), iterations=20)
+        else:
+            exclude, longest = _exclusion(feats, n, lambda f: f["fwhm_px"])
+            knots = max(base_knots, 1.2 * longest)
+            cont, _ = fit_continuum(y, sig, good, knot_px=min(knots, max(n // 2, 8)), exclude=exclude)
     r = y - cont
     feats = []
     model = np.zeros(n)
     for round_ in range(4):
-        new = _candidates(r - model, w, fwhm_px, threshold, kinds, n)
-        added = False
-        for px, f, s, amp in new:
-            if any(abs(px - g["px"]) < 0.7 * min(f, g["fwhm_px"]) for g in feats):
-                continue
-            feats.append({"px": px, "fwhm_px": f, "snr_det": s, "amp0": amp, "fit": None,
-                          "group": 1, "spike": False})
-            added = True
-        if not added:
+        w_round = w if round_ == 0 else _inflated_weights(r, model, sig, good, w, feats)
+        added = _new_feats(_candidates(r - model, w_round, fwhm_px, threshold, kinds, n), feats)
+        feats.extend(added)
+        if not added and round_ > 0:
+            if not _split_wide(feats, x, r, sig, good, dx, fwhm_px, n):
+                break
+        elif not added:
             break
         model = _fit_groups(_groups(feats), x, r, sig, good, 0, n, dx)
-        # move candidate pixels to the fitted centres for the next grouping
-        for g in feats:
-            fit = g["fit"]
-            if fit and fit["ok"] and np.isfinite(fit["center"]):
-                g["px"] = int(np.clip(np.searchsorted(x, fit["center"]), 0, n - 1))
-                g["fwhm_px"] = max(fit["fwhm"] / np.median(dx), 1.0)
+        _sync(feats, x, dx)
     rows = []
     for g in feats:
         fit = g["fit"]
         if fit is None or not np.isfinite(fit["center"]):
             continue
-        g["snr_fit"] = abs(fit["flux"]) / fit["flux_err"] if fit["flux_err"] > 0 else 0.0
+        snr_fit = abs(fit["flux"]) / fit["flux_err"] if fit["flux_err"] > 0 else 0.0
         fpx = fit["fwhm"] / max(np.median(dx), 1e-300)
-        spike = (fpx < 0.8) or (fwhm_px >= 1.5 and fpx < 0.45 * fwhm_px)
-        g["spike"] = spike
-        if spike:
-            continue
+        if (fpx < 0.8) or (fwhm_px >= 1.5 and fpx < 0.45 * fwhm_px):
+            continue   # a single-pixel spike (cosmic ray, hot pixel)
         ipx = int(np.clip(np.searchsorted(x, fit["center"]), 0, n - 1))
         from_edge = min(ipx, n - 1 - ipx)
         if from_edge < 0.5 * fpx or fit["center"] < x[0] or fit["center"] > x[-1]:
             continue
-        if g["snr_fit"] < 0.5 * threshold:
+        if snr_fit < 0.5 * threshold:
             continue
         flags = []
         if g["group"] > 1:
@@ -278,10 +408,10 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
         c = float(np.interp(fit["center"], x, cont))
         eqw = -fit["flux"] / c if c != 0 else np.nan
         eqw_err = abs(fit["flux_err"] / c) if c != 0 else np.nan
-        rows.append({**fit, "flags": ",".join(flags), "snr": g["snr_fit"], "snr_det": g["snr_det"],
+        rows.append({**fit, "flags": ",".join(flags), "snr": snr_fit, "snr_det": g["snr_det"],
                      "kind": "emission" if fit["amplitude"] > 0 else "absorption",
                      "eqw": eqw, "eqw_err": eqw_err, "continuum": c, "pixel": ipx + offset,
-                     "group": g["group"], "spike": False})
+                     "group": g["group"]})
     return rows, cont
 
 

@@ -68,7 +68,8 @@ def _medium_from_header(header, ctype=""):
     if ctype.startswith("WAVE"):
         return "vacuum", "CTYPE1 = WAVE"
     if ctype.startswith(("FREQ", "ENER", "WAVN", "VRAD", "VOPT")):
-        return "vacuum", f"CTYPE1 = {ctype} (not a wavelength)"
+        return "vacuum", "not a wavelength axis" if ctype in ("ENER", "FREQ") else \
+            f"CTYPE1 = {ctype} (not a wavelength)"
     for key in ("AIRORVAC", "MEDIUM", "WAVEMEDI", "WAVFRAME", "SPECSYS_MEDIUM"):
         val = str(header.get(key, "")).strip().lower()
         if val.startswith("air"):
@@ -354,7 +355,7 @@ def _read_table(path, hdul, tables, index, medium, input_unit):
     if ax_name.lower() == "wave_vac":
         ctype = "WAVE"
     if not unit.is_equivalent(u.m):
-        ctype = "FREQ"
+        ctype = "ENER" if unit.is_equivalent(u.eV) else "FREQ"
     med, med_src = _medium(h.header, hdul[0].header, ctype, medium)
     meta = {"source": str(path), "hdu": i, "index": row if vector else None,
             "axis_unit_source": unit_source, "medium": med, "medium_source": med_src,

@@ -28,11 +28,6 @@ def _gauss(x, p, ncomp):
     return out
 
 
-def _voigt(x, p):
-    f, mu, s, g, b0, b1 = p
-    return b0 + b1 * x + f * voigt_profile(x - mu, s, g)
-
-
 def _covariance(res, n_par):
     J = res.jac
     dof = max(len(res.fun) - n_par, 1)
@@ -80,8 +75,21 @@ def fit_group(x, r, sigma, centers, widths, amplitudes, *, min_sigma, try_voigt=
     def fun(p):
         return (_gauss(xs, p, ncomp) - r) * inv
 
+    def jac(p):
+        J = np.empty((len(xs), len(p)))
+        for k in range(ncomp):
+            a, mu, s = p[3 * k:3 * k + 3]
+            d = (xs - mu) / s
+            e = np.exp(-0.5 * d ** 2)
+            J[:, 3 * k] = e
+            J[:, 3 * k + 1] = a * e * d / s
+            J[:, 3 * k + 2] = a * e * d ** 2 / s
+        J[:, 3 * ncomp] = 1.0
+        J[:, 3 * ncomp + 1] = xs
+        return J * inv[:, None]
+
     try:
-        res = least_squares(fun, p0, bounds=(lo, hi), x_scale="jac", max_nfev=200 * len(p0))
+        res = least_squares(fun, p0, jac=jac, bounds=(lo, hi), x_scale="jac", max_nfev=100 * len(p0))
     except (ValueError, np.linalg.LinAlgError):
         return [_failed(c) for c in centers]
     cov, red = _covariance(res, len(p0))
@@ -96,46 +104,63 @@ def fit_group(x, r, sigma, centers, widths, amplitudes, *, min_sigma, try_voigt=
                     "amplitude_err": np.sqrt(c[0, 0]), "flux": flux,
                     "flux_err": np.sqrt(max(grad @ c @ grad, 0.0)), "profile": "gaussian",
                     "chi2_red": red, "ok": bool(res.success), "at_bound": bool(np.isclose(s, min_sigma))})
-    if try_voigt and ncomp == 1 and red > 2.0 and abs(out[0]["flux"]) > 20 * out[0]["flux_err"]:
-        v = _fit_voigt(xs, r, inv, res.x, min_sigma, x0, red, len(r))
+    strong = any(abs(o["flux"]) > 20 * o["flux_err"] for o in out if np.isfinite(o["flux_err"]))
+    if try_voigt and red > 2.0 and strong:
+        v = _fit_voigt(xs, r, inv, res.x, ncomp, min_sigma, x0, red, len(r))
         if v is not None:
-            out = [v]
+            out = v
     return out
 
 
-def _fit_voigt(xs, r, inv, pg, min_sigma, x0, red_gauss, npix):
-    a, mu, s, b0, b1 = pg
-    p0 = [a * s * np.sqrt(2 * np.pi), mu, s * 0.7, s * 0.5, b0, b1]
-    lo = [-np.inf, xs[0], min_sigma, 0.0, -np.inf, -np.inf]
-    hi = [np.inf, xs[-1], np.inf, np.inf, np.inf, np.inf]
+def _voigt_sum(xs, p, ncomp):
+    out = p[4 * ncomp] + p[4 * ncomp + 1] * xs
+    for k in range(ncomp):
+        f, mu, s, g = p[4 * k:4 * k + 4]
+        out = out + f * voigt_profile(xs - mu, s, g)
+    return out
+
+
+def _fit_voigt(xs, r, inv, pg, ncomp, min_sigma, x0, red_gauss, npix):
+    """Refit a group with Voigt components; kept only if the BIC says the wings need it."""
+    p0, lo, hi = [], [], []
+    for k in range(ncomp):
+        a, mu, s = pg[3 * k:3 * k + 3]
+        p0 += [a * s * np.sqrt(2 * np.pi), mu, max(s * 0.7, min_sigma * 1.01), s * 0.5]
+        lo += [-np.inf, xs[0], min_sigma, 0.0]
+        hi += [np.inf, xs[-1], np.inf, np.inf]
+    p0 += list(pg[3 * ncomp:3 * ncomp + 2])
+    lo += [-np.inf, -np.inf]
+    hi += [np.inf, np.inf]
 
     def fun(p):
-        return (_voigt(xs, p) - r) * inv
+        return (_voigt_sum(xs, p, ncomp) - r) * inv
 
     try:
-        res = least_squares(fun, p0, bounds=(lo, hi), x_scale="jac", max_nfev=3000)
+        res = least_squares(fun, np.clip(p0, lo, hi), bounds=(lo, hi), x_scale="jac",
+                            max_nfev=400 * len(p0))
     except (ValueError, np.linalg.LinAlgError):
         return None
     chi2_v = float(np.sum(res.fun ** 2))
-    chi2_g = red_gauss * max(npix - 5, 1)
-    if chi2_g - chi2_v < 10.0 + np.log(npix):   # BIC: one more parameter must pay its way
+    chi2_g = red_gauss * max(npix - 3 * ncomp - 2, 1)
+    if chi2_g - chi2_v < ncomp * (10.0 + np.log(npix)):   # BIC: the extra parameters must pay
         return None
-    cov, red = _covariance(res, 6)
-    f, mu, s, g = res.x[:4]
-    fg = GAUSS_FWHM * s
-    fl = 2 * g
-    fwhm = 0.5346 * fl + np.sqrt(0.2166 * fl ** 2 + fg ** 2)
-    # derivative of the Olivero formula for the FWHM error
-    root = np.sqrt(0.2166 * fl ** 2 + fg ** 2)
-    d_s = GAUSS_FWHM * fg / root
-    d_g = 2 * (0.5346 + 0.2166 * fl / root)
-    grad_w = np.array([0, 0, d_s, d_g, 0, 0])
-    peak = f * voigt_profile(0.0, s, g)
-    return {"center": mu + x0, "center_err": np.sqrt(cov[1, 1]), "fwhm": fwhm,
-            "fwhm_err": np.sqrt(max(grad_w @ cov @ grad_w, 0.0)), "amplitude": peak,
-            "amplitude_err": abs(peak) * np.sqrt(cov[0, 0]) / max(abs(f), 1e-300), "flux": f,
-            "flux_err": np.sqrt(cov[0, 0]), "profile": "voigt", "chi2_red": red,
-            "ok": bool(res.success), "at_bound": False, "lorentz_fwhm": fl, "gauss_fwhm": fg}
+    cov, red = _covariance(res, len(p0))
+    out = []
+    for k in range(ncomp):
+        f, mu, s, g = res.x[4 * k:4 * k + 4]
+        c = cov[4 * k:4 * k + 4, 4 * k:4 * k + 4]
+        fg = GAUSS_FWHM * s
+        fl = 2 * g
+        root = np.sqrt(0.2166 * fl ** 2 + fg ** 2)
+        fwhm = 0.5346 * fl + root
+        grad_w = np.array([0.0, 0.0, GAUSS_FWHM * fg / root, 2 * (0.5346 + 0.2166 * fl / root)])
+        peak = f * voigt_profile(0.0, s, g)
+        out.append({"center": mu + x0, "center_err": np.sqrt(c[1, 1]), "fwhm": fwhm,
+                    "fwhm_err": np.sqrt(max(grad_w @ c @ grad_w, 0.0)), "amplitude": peak,
+                    "amplitude_err": abs(peak) * np.sqrt(c[0, 0]) / max(abs(f), 1e-300), "flux": f,
+                    "flux_err": np.sqrt(c[0, 0]), "profile": "voigt", "chi2_red": red,
+                    "ok": bool(res.success), "at_bound": False, "lorentz_fwhm": fl, "gauss_fwhm": fg})
+    return out
 
 
 def _failed(center):
