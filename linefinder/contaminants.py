@@ -1,0 +1,49 @@
+"""Built-in contaminants at fixed observed wavelengths (never redshifted).
+
+Night-sky emission lines and telluric absorption bands, standard air
+wavelengths in Å (values recalled from common sky-line atlases, e.g.
+Osterbrock et al. 1996, to the 0.01 Å shown; band edges are approximate,
+common practice).  Used as a mask: features inside are flagged ``sky`` and
+left out of redshift and identification unless asked otherwise.
+"""
+
+import numpy as np
+from astropy import units as u
+
+from .medium import air_to_vacuum
+
+__all__ = ["SKY_LINES_AIR", "TELLURIC_BANDS_AIR", "sky_mask"]
+
+SKY_LINES_AIR = {"[O I] 5577": 5577.34, "Na I D2": 5889.95, "Na I D1": 5895.92,
+                 "[O I] 6300": 6300.30, "[O I] 6364": 6363.78, "OH 6864": 6863.96,
+                 "OH 7913": 7913.71, "OH 8399": 8399.17, "OH 8827": 8827.10}
+TELLURIC_BANDS_AIR = {"O2 B band": (6867.0, 6884.0), "H2O 7200": (7160.0, 7340.0),
+                      "O2 A band": (7594.0, 7621.0), "H2O 8200": (8130.0, 8350.0),
+                      "H2O 9300": (9300.0, 9650.0)}
+
+
+def sky_mask(center, center_err, fwhm, *, medium="vacuum", tolerance=1.0):
+    """Boolean array: features that coincide with a sky line or sit in a telluric band.
+
+    `center`, `center_err`, `fwhm` are wavelength Quantities; a feature is on a
+    sky line when closer than `tolerance` times (its FWHM/2 + 3 sigma).
+    """
+    c = u.Quantity(center)
+    if not c.unit.is_equivalent(u.m):
+        return np.zeros(c.shape, dtype=bool)
+    c_aa = c.to_value(u.AA)
+    err = u.Quantity(center_err).to_value(u.AA)
+    half = u.Quantity(fwhm).to_value(u.AA) / 2
+    lines = np.array(list(SKY_LINES_AIR.values()))
+    bands = np.array(list(TELLURIC_BANDS_AIR.values()))
+    if medium == "vacuum":
+        lines = air_to_vacuum(lines * u.AA).to_value(u.AA)
+        bands = air_to_vacuum(bands * u.AA).to_value(u.AA)
+    out = np.zeros(len(c_aa), dtype=bool)
+    for i, x in enumerate(np.atleast_1d(c_aa)):
+        tol = tolerance * (half[i] + 3 * err[i] if np.isfinite(err[i]) else half[i])
+        if np.any(np.abs(lines - x) < max(tol, 1.0)):
+            out[i] = True
+        elif np.any((bands[:, 0] <= x) & (x <= bands[:, 1])):
+            out[i] = True
+    return out

@@ -1,0 +1,369 @@
+"""The main job: features -> redshift -> identifications -> what is left.
+
+`identify` takes a spectrum (`SpectrumData`) or a peak list, measures the
+features if needed, chooses a catalogue for the spectral regime (optical/IR:
+H I and He II; X-ray: hydrogen-like C VI ... Ni XXVIII; radio: H, He and C
+recombination lines) unless species are given, finds the shift from the
+features alone (`redshift.search_shift`) or takes a fixed one, assigns
+lines globally (`matching.assign`), matches what is left to a user's own
+line list, and looks for a second system among the rest.
+
+Every position error used in the matching is the quadrature sum of the
+measured centre error, a calibration term (default 2e-5 relative, 6 km/s)
+and a fraction (default 0.1) of the resolution element; all three are
+recorded in the result's metadata.
+"""
+
+from dataclasses import dataclass, field
+
+import numpy as np
+from astropy import units as u
+from astropy.table import QTable
+
+from . import constants as K
+from .catalogue import build_catalogue
+from .contaminants import sky_mask
+from .doppler import C_KMS
+from .matching import CASE_B_HBETA, assign
+from .medium import air_to_vacuum
+from .redshift import classify, refine, search_shift
+
+__all__ = ["identify", "Identification", "default_species", "read_line_list"]
+
+XRAY_IONS = ["C VI", "N VII", "O VIII", "Ne X", "Mg XII", "Si XIV", "S XVI", "Ar XVIII", "Ca XX",
+             "Fe XXVI", "Ni XXVIII"]
+
+
+@dataclass
+class Identification:
+    features: QTable
+    status: str
+    solutions: list
+    lines: QTable
+    z: float = None
+    z_err: float = None
+    velocity_kms: float = None
+    velocity_err_kms: float = None
+    velocity_convention: str = "optical"
+    systems: list = field(default_factory=list)
+    feature_result: object = None
+    meta: dict = field(default_factory=dict)
+
+
+def regime(lam_vac_m):
+    lo, hi = float(np.min(lam_vac_m)), float(np.max(lam_vac_m))
+    if hi < 2.5e-9:
+        return "xray"
+    if lo > 1e-4:
+        return "radio"
+    return "optical"
+
+
+def default_species(reg):
+    return {"xray": XRAY_IONS, "radio": ["H", "He", "C"], "optical": ["H", "He II"]}[reg]
+
+
+def _n_ranges(reg, lam_rest_min, lam_rest_max):
+    if reg == "xray":
+        return (1, 2), (2, 12)
+    if reg == "radio":
+        nu_max = K.C / lam_rest_min
+        nu_min = K.C / lam_rest_max
+        lo = int(np.floor((2 * K.RYDBERG_HZ / nu_max) ** (1 / 3))) - 2
+        hi = int(np.ceil((2 * 4 * K.RYDBERG_HZ / nu_min) ** (1 / 3))) + 2
+        lo = max(lo, 20)
+        hi = min(max(hi, lo), 1995)
+        return (lo, hi), (lo + 1, hi + 4)
+    return (1, 6), (2, 40)
+
+
+def _strengths(cat):
+    """Expected strength of each line within its species and series (0..1)."""
+    strength = np.zeros(len(cat))
+    key = [f"{a}|{b}" for a, b in zip(cat["species"], cat["series"])]
+    base = np.asarray(cat["rel_intensity"], dtype=float)
+    for k in set(key):
+        sel = np.array([kk == k for kk in key])
+        vals = base[sel].copy()
+        if k.startswith("H I|") or k.startswith("D I|"):
+            nl = np.asarray(cat["n_lower"][sel])
+            nu = np.asarray(cat["n_upper"][sel])
+            case_b = np.array([CASE_B_HBETA.get((a, b), np.nan) for a, b in zip(nl, nu)])
+            vals = np.where(np.isfinite(case_b), case_b, vals * 0.05)
+        m = np.nanmax(vals) if len(vals) else 1.0
+        strength[sel] = vals / m if m > 0 else 0.0
+    # across species: hydrogen dominates; helium, carbon and isotopes are usually far weaker
+    # (He/H ~ 0.1 by number; a rule of thumb for the search, not a physical claim)
+    species = np.asarray(cat["species"]).astype(str)
+    primary = "H I" if "H I" in set(species) else (species[0] if len(species) else "")
+    strength = np.where(species == primary, strength, 0.25 * strength)
+    return strength, np.array(key)
+
+
+def read_line_list(path):
+    """A user's line list (CSV/ECSV): name, rest position with unit, medium (air/vacuum)."""
+    from .errors import SpectrumFormatError
+    from .header_units import parse_spectral_unit, unit_from_label
+
+    try:
+        t = QTable.read(path, format="ascii.ecsv") if str(path).endswith(".ecsv") else \
+            QTable.read(path, format="ascii.csv", comment="#")
+    except FileNotFoundError:
+        raise
+    except Exception as exc:  # astropy raises many types for malformed tables
+        raise SpectrumFormatError(f"{path}: not a readable line list ({str(exc).splitlines()[0]})") \
+            from None
+    names = {unit_from_label(c)[0].lower(): c for c in t.colnames}
+    pos_col = next((names[n] for n in ("wavelength", "wave", "rest", "frequency", "freq", "energy",
+                                       "position", "lambda") if n in names), None)
+    name_col = next((names[n] for n in ("name", "label", "line", "id") if n in names), None)
+    if pos_col is None or name_col is None:
+        raise SpectrumFormatError(f"{path}: a line list needs a name column and a rest position "
+                                  "column (wavelength, frequency or energy)")
+    col = t[pos_col]
+    unit = getattr(col, "unit", None)
+    if unit is None:
+        text = unit_from_label(pos_col)[1] or t.meta.get("unit")
+        if text is None:
+            raise SpectrumFormatError(f"{path}: the rest positions have no unit (write e.g. "
+                                      "'wavelength [Angstrom]')")
+        unit = parse_spectral_unit(text)
+    values = u.Quantity(np.asarray(col, dtype=float), unit)
+    med_col = names.get("medium")
+    medium = np.array([str(m).lower() for m in t[med_col]]) if med_col else \
+        np.full(len(t), str(t.meta.get("medium", "vacuum")).lower())
+    lam = values.to(u.m, equivalencies=u.spectral()).value
+    if values.unit.is_equivalent(u.m):
+        air = np.char.startswith(medium.astype(str), "air")
+        if np.any(air):
+            lam[air] = air_to_vacuum(lam[air] * u.m).to_value(u.m)
+    return [{"name": str(n), "rest_vacuum_m": float(v)} for n, v in zip(t[name_col], lam)]
+
+
+def _observed(features, medium):
+    """Vacuum wavelengths (m) and relative errors of feature centres."""
+    c = u.Quantity(features["center"])
+    err = u.Quantity(features["center_err"]).to_value(c.unit) if "center_err" in features.colnames \
+        else np.full(len(c), np.nan)
+    lam = c.to(u.m, equivalencies=u.spectral()).value
+    if c.unit.is_equivalent(u.m) and medium == "air":
+        lam = air_to_vacuum(lam * u.m).to_value(u.m)
+    rel = np.abs(err / c.value)
+    return lam, rel
+
+
+def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
+             kinds=("emission", "absorption"), snr=5.0, resolution=None, extra_lines=None,
+             mask_sky=False, calibration=2e-5, resolution_fraction=0.1, find_systems=True):
+    """Identify the hydrogenic lines of a spectrum or a peak list; see the module docstring."""
+    from .features import find_features
+    from .readers import is_peak_list
+
+    feature_result = None
+    if is_peak_list(data):
+        feats = _peaks_as_features(data)
+        medium = data.meta.get("medium", "vacuum")
+        R = resolution or data.meta.get("resolution")
+    else:
+        feature_result = find_features(data, snr=snr, resolution=resolution, kinds=kinds)
+        feats = feature_result.features.copy()
+        medium = feature_result.meta["medium"]
+        R = feature_result.meta.get("resolution")
+    feats = feats[[k in kinds for k in feats["kind"]]] if len(feats) else feats
+    lam, rel = _observed(feats, medium) if len(feats) else (np.array([]), np.array([]))
+    if not R and len(feats):
+        fw = u.Quantity(feats["fwhm"]).to_value(feats["center"].unit)
+        rr = np.abs(u.Quantity(feats["center"]).value / fw)
+        R = float(np.nanmedian(rr)) if np.any(np.isfinite(rr)) else 2000.0
+    R = R or 2000.0
+    sy = np.sqrt(np.nan_to_num(rel, nan=1.0 / R) ** 2 + calibration ** 2 + (resolution_fraction / R) ** 2)
+    is_freq_axis = len(feats) > 0 and not u.Quantity(feats["center"]).unit.is_equivalent(u.m)
+    if len(feats):
+        sky = sky_mask(feats["center"], feats["center_err"], feats["fwhm"], medium=medium) \
+            if not is_freq_axis else np.zeros(len(feats), bool)
+    else:
+        sky = np.zeros(0, bool)
+    reg = regime(lam) if len(lam) else "optical"
+    if zmin is None:
+        zmin = -0.005 if reg == "radio" else 0.0
+    if zmax is None:
+        zmax = 0.005 if reg == "radio" else 7.0
+    if z is not None:
+        zmin = zmax = z
+    names = list(species) if species else default_species(reg)
+    if len(lam):
+        lam_rest_min = lam.min() / (1 + zmax) * (1 - 5e-3)
+        lam_rest_max = lam.max() / (1 + zmin) * (1 + 5e-3)
+    else:
+        lam_rest_min, lam_rest_max = 1e-10, 1e-5
+    lower, upper = _n_ranges(reg, lam_rest_min, lam_rest_max)
+    cat = build_catalogue(names, lower, upper,
+                          wavelength_range=(lam_rest_min * u.m, lam_rest_max * u.m))
+    if series:
+        wanted = {s.lower() for s in series}
+        cat = cat[[str(s).lower() in wanted for s in cat["series"]]]
+    strength, group = _strengths(cat) if len(cat) else (np.zeros(0), np.zeros(0, dtype=str))
+    keep = strength >= 1e-3
+    cat, strength, group = cat[keep], strength[keep], group[keep]
+    x = np.log(cat["wavelength_vacuum"].to_value(u.m)) if len(cat) else np.zeros(0)
+    y = np.log(lam) if len(lam) else np.zeros(0)
+    snr_arr = np.asarray(feats["snr"], dtype=float) if len(feats) else np.zeros(0)
+    w = np.log1p(np.clip(np.nan_to_num(snr_arr, nan=5.0), 0, 1e4))
+    use = ~(sky if mask_sky else np.zeros(len(feats), bool))
+    s_lo, s_hi = np.log1p(zmin), np.log1p(zmax)
+    anchors = np.flatnonzero(strength >= 0.02)
+    if z is None:
+        sols = search_shift(y[use], sy[use], w[use], x, strength, smin=s_lo, smax=s_hi,
+                            anchors=anchors if len(anchors) else None)
+        sols = [_reindex(s, np.flatnonzero(use)) for s in sols]
+    else:
+        sol = refine(np.log1p(z), y[use], sy[use], w[use], x, strength, np.ones(len(x), bool),
+                     window=(y.min() - 0.01, y.max() + 0.01) if len(y) else None)
+        sol = _reindex(sol, np.flatnonzero(use))
+        sol.s = float(np.log1p(z))
+        sols = [sol] if sol.n_lines else []
+    status = classify(sols)
+    best_s = sols[0].s if sols else (np.log1p(z) if z is not None else None)
+    out = _feature_table(feats, sky, mask_sky)
+    if best_s is not None and status != "none" or (z is not None and best_s is not None):
+        idx = np.flatnonzero(use)
+        flux = np.abs(np.asarray(feats["flux"].value if hasattr(feats["flux"], "value")
+                                 else feats["flux"], dtype=float))
+        blend = np.array(["blend" in str(f) for f in feats["flags"]])
+        best, alts, scores, resid = assign(y[idx], sy[idx], flux[idx], blend[idx], x, strength,
+                                           group, best_s)
+        _fill(out, idx, best, alts, scores, resid, cat, sy[idx], y[idx], best_s)
+    if extra_lines:
+        _match_user(out, extra_lines, y, sy, best_s if best_s is not None else 0.0)
+    systems = []
+    if find_systems and z is None and status == "secure":
+        rest = np.flatnonzero(use & (np.asarray(out["label"]) == ""))
+        if len(rest) >= 3:
+            more = search_shift(y[rest], sy[rest], w[rest], x, strength, smin=s_lo, smax=s_hi,
+                                anchors=anchors if len(anchors) else None, n_solutions=2)
+            more = [_reindex(s, rest) for s in more]
+            primary = sols[0]
+            if more and classify(more) == "secure" and more[0].n_lines >= 4 and \
+                    more[0].score >= 0.5 * primary.score:
+                systems.append(more[0])
+                b2, a2, sc2, r2 = assign(y[rest], sy[rest], np.ones(len(rest)),
+                                         np.zeros(len(rest), bool), x, strength, group, more[0].s)
+                _fill(out, rest, b2, a2, sc2, r2, cat, sy[rest], y[rest], more[0].s, system=2)
+    result = Identification(features=out, status=status, solutions=sols, lines=cat,
+                            feature_result=feature_result, systems=systems)
+    if best_s is not None and (status != "none" or z is not None):
+        zz = float(np.expm1(best_s))
+        zerr = sols[0].z_err if sols else 0.0
+        result.z, result.z_err = zz, float(zerr)
+        if is_freq_axis and reg == "radio":
+            result.velocity_convention = "radio"
+            result.velocity_kms = float(C_KMS * zz / (1 + zz))
+            result.velocity_err_kms = float(C_KMS * zerr / (1 + zz) ** 2)
+        else:
+            result.velocity_convention = "optical"
+            result.velocity_kms = float(C_KMS * zz)
+            result.velocity_err_kms = float(C_KMS * zerr)
+    result.meta = {"medium": medium, "regime": reg, "species": [str(s) for s in sorted(set(cat["species"]))]
+                   if len(cat) else names, "resolution": R, "calibration_term": calibration,
+                   "resolution_fraction": resolution_fraction, "z_range": [zmin, zmax],
+                   "z_fixed": z is not None, "sky_masked": bool(mask_sky),
+                   "constants": cat.meta.get("constants"), "catalogue": dict(cat.meta)}
+    return result
+
+
+def _reindex(sol, idx):
+    sol.matches = [(int(idx[i]), j, r) for i, j, r in sol.matches]
+    return sol
+
+
+def _peaks_as_features(peaks):
+    t = QTable()
+    c = u.Quantity(peaks["center"])
+    t["center"] = c
+    if "center_err" in peaks.colnames:
+        t["center_err"] = u.Quantity(peaks["center_err"], c.unit)
+    else:
+        t["center_err"] = np.full(len(c), np.nan) * c.unit
+    if "fwhm" in peaks.colnames:
+        t["fwhm"] = u.Quantity(peaks["fwhm"], c.unit)
+    else:
+        t["fwhm"] = np.full(len(c), np.nan) * c.unit
+    t["flux"] = np.asarray(peaks["flux"], float) if "flux" in peaks.colnames else \
+        (np.asarray(peaks["amplitude"], float) if "amplitude" in peaks.colnames else np.ones(len(c)))
+    t["snr"] = np.asarray(peaks["snr"], float) if "snr" in peaks.colnames else np.full(len(c), 10.0)
+    t["kind"] = np.asarray(peaks["kind"]).astype(str) if "kind" in peaks.colnames else \
+        np.full(len(c), "emission")
+    t["flags"] = np.full(len(c), "")
+    return t
+
+
+def _feature_table(feats, sky, mask_sky):
+    out = QTable()
+    for col in ("center", "center_err", "fwhm", "flux", "snr", "kind"):
+        out[col] = feats[col]
+    flags = [str(f) for f in feats["flags"]] if len(feats) else []
+    flags = [",".join([p for p in (f, "sky" if s else "") if p]) for f, s in zip(flags, sky)]
+    out["flags"] = np.array(flags, dtype=object).astype(str) if len(flags) else np.array([], str)
+    n = len(feats)
+    out["label"] = np.full(n, "", dtype=object).astype("U32")
+    out["species"] = np.full(n, "", dtype="U16")
+    out["series"] = np.full(n, "", dtype="U16")
+    out["n_lower"] = np.zeros(n, dtype=int)
+    out["n_upper"] = np.zeros(n, dtype=int)
+    out["rest_wavelength_vacuum"] = np.full(n, np.nan) * u.nm
+    out["residual_kms"] = np.full(n, np.nan)
+    out["residual"] = np.full(n, np.nan) * feats["center"].unit if n else [] * u.nm
+    out["residual_sigma"] = np.full(n, np.nan)
+    out["score"] = np.zeros(n)
+    out["system"] = np.zeros(n, dtype=int)
+    out["alternatives"] = np.full(n, "", dtype="U200")
+    out["user_line"] = np.full(n, "", dtype="U40")
+    out.meta["sky_mask_applied"] = bool(mask_sky)
+    return out
+
+
+def _fill(out, idx, best, alts, scores, resid, cat, sy, y, s, system=1):
+    for k, i in enumerate(idx):
+        j = best[k]
+        if j < 0:
+            continue
+        row = cat[j]
+        out["label"][i] = str(row["label"])
+        out["species"][i] = str(row["species"])
+        out["series"][i] = str(row["series"])
+        out["n_lower"][i] = int(row["n_lower"])
+        out["n_upper"][i] = int(row["n_upper"])
+        out["rest_wavelength_vacuum"][i] = row["wavelength_vacuum"].to(u.nm)
+        dln = y[k] - s - np.log(row["wavelength_vacuum"].to_value(u.m))
+        out["residual_kms"][i] = float(C_KMS * dln)
+        c = out["center"][i]
+        pred_m = np.exp(s) * row["wavelength_vacuum"].to_value(u.m)
+        pred = (pred_m * u.m).to(c.unit, equivalencies=u.spectral())
+        if c.unit.is_equivalent(u.m):
+            out["residual"][i] = float(c.value * (1 - np.exp(-dln))) * c.unit
+        else:
+            out["residual"][i] = c - pred
+        out["residual_sigma"][i] = float(resid[k])
+        out["score"][i] = float(scores[k])
+        out["system"][i] = system
+        out["alternatives"][i] = "; ".join(f"{cat['species'][a]} {cat['label'][a]} ({p:.2f})"
+                                           for a, p in alts[k])
+    out.meta.setdefault("alternatives_detail", {})
+    for k, i in enumerate(idx):
+        out.meta["alternatives_detail"][int(i)] = [
+            {"label": str(cat["label"][a]), "species": str(cat["species"][a]),
+             "n_lower": int(cat["n_lower"][a]), "n_upper": int(cat["n_upper"][a]), "score": float(p)}
+            for a, p in alts[k]]
+
+
+def _match_user(out, extra, y, sy, s, tol=3.0):
+    for i in range(len(out)):
+        if out["label"][i]:
+            continue
+        best = None
+        for line in extra:
+            d = (y[i] - s - np.log(line["rest_vacuum_m"])) / sy[i]
+            if abs(d) < tol and (best is None or abs(d) < best[1]):
+                best = (line["name"], abs(d))
+        if best:
+            out["user_line"][i] = best[0]
