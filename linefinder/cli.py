@@ -28,9 +28,9 @@ class _Parser(argparse.ArgumentParser):
 
 
 def _subcommands():
-    from . import cli_catalogue, cli_spectrum
+    from . import cli_catalogue, cli_identify, cli_spectrum
 
-    return [cli_catalogue, cli_spectrum]
+    return [cli_catalogue, cli_spectrum, cli_identify]
 
 
 def build_parser():

@@ -1,0 +1,187 @@
+"""Reports: feature table (CSV, ECSV), JSON summary, annotated plot (PNG, SVG), one HTML page."""
+
+import base64
+import json
+from pathlib import Path
+
+import numpy as np
+from astropy import units as u
+
+from .errors import OutputExistsError
+from .tables_io import json_default
+
+__all__ = ["summary", "write_report"]
+
+
+def _alternatives(result):
+    out = []
+    best = result.solutions[0] if result.solutions else None
+    for s in result.solutions[1:]:
+        out.append({"z": s.z, "z_err": s.z_err, "n_lines": s.n_lines, "score": s.score,
+                    "delta_score": (best.score - s.score) if best else None, "chi2": s.chi2})
+    return out
+
+
+def summary(result, *, unit=None):
+    """The JSON summary of an identification (keys of the command-line contract first)."""
+    f = result.features
+    cu = unit or (f["center"].unit if len(f) else u.nm)
+    feats = []
+    unid = []
+    detail = f.meta.get("alternatives_detail", {})
+    for i in range(len(f)):
+        c = f["center"][i].to_value(cu, equivalencies=u.spectral())
+        ce = abs((f["center"][i] + f["center_err"][i]).to_value(cu, equivalencies=u.spectral()) - c) \
+            if np.isfinite(f["center_err"][i].value) else None
+        label = str(f["label"][i]) or None
+        row = {"center": c, "center_err": ce, "kind": str(f["kind"][i]), "snr": float(f["snr"][i]),
+               "label": label, "species": str(f["species"][i]) or None,
+               "n_lower": int(f["n_lower"][i]) if label else None,
+               "n_upper": int(f["n_upper"][i]) if label else None,
+               "residual_kms": float(f["residual_kms"][i]) if label else None,
+               "score": float(f["score"][i]) if label else 0.0,
+               "alternatives": detail.get(i, []), "flags": str(f["flags"][i]),
+               "system": int(f["system"][i]), "user_line": str(f["user_line"][i]) or None}
+        feats.append(row)
+        if not label:
+            unid.append({"center": c, "center_err": ce, "kind": row["kind"], "snr": row["snr"],
+                         "flags": row["flags"], "user_line": row["user_line"]})
+    best = result.solutions[0] if result.solutions else None
+    return {"z": result.z, "z_err": result.z_err, "status": result.status,
+            "velocity_kms": result.velocity_kms, "velocity_err_kms": result.velocity_err_kms,
+            "velocity_convention": result.velocity_convention,
+            "lines": [r["label"] for r in feats if r["label"] and r["system"] == 1],
+            "n_lines": best.n_lines if best else 0,
+            "alternatives": _alternatives(result),
+            "systems": [{"z": s.z, "z_err": s.z_err, "n_lines": s.n_lines} for s in result.systems],
+            "features": feats, "unidentified": unid, "unit": str(cu),
+            "medium": result.meta.get("medium"), "meta": {k: v for k, v in result.meta.items()
+                                                           if k != "catalogue"}}
+
+
+def _plot(result, path_png, path_svg):
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    fr = result.feature_result
+    f = result.features
+    series = sorted({(str(s), str(r)) for s, r, l in zip(f["species"], f["series"], f["label"]) if l})[:4]
+    nz = max(len(series), 1)
+    fig = plt.figure(figsize=(12, 7.5))
+    gs = fig.add_gridspec(3, nz, height_ratios=[3, 1, 2], hspace=0.45)
+    ax = fig.add_subplot(gs[0, :])
+    axr = fig.add_subplot(gs[1, :], sharex=ax)
+    unit = f["center"].unit if len(f) else u.AA
+    if fr is not None:
+        sp = fr.spectrum
+        x = sp.axis.value
+        y = sp.flux.value
+        good = ~sp.mask
+        sig = fr.noise
+        ax.plot(x, np.where(good, y, np.nan), lw=0.7, color="k", label="spectrum")
+        ax.fill_between(x, y - sig, y + sig, where=good, color="0.7", alpha=0.6, lw=0,
+                        label="1σ uncertainty")
+        ax.plot(x, fr.continuum, color="tab:orange", lw=1, label="continuum")
+        with np.errstate(invalid="ignore", divide="ignore"):
+            axr.plot(x, np.where(good, (y - fr.continuum) / sig, np.nan), lw=0.6, color="k")
+        axr.axhline(0, color="tab:orange", lw=0.8)
+        axr.set_ylabel("(data − cont.)/σ")
+        unit = sp.axis.unit
+    for i in range(len(f)):
+        c = f["center"][i].to_value(unit, equivalencies=u.spectral())
+        color = "tab:blue" if f["label"][i] else ("tab:purple" if f["user_line"][i] else "tab:red")
+        ax.axvline(c, color=color, lw=0.6, alpha=0.5)
+        name = f["label"][i] or f["user_line"][i] or "?"
+        ax.annotate(name, (c, 1.0), xycoords=("data", "axes fraction"), rotation=90, fontsize=7,
+                    ha="right", va="top", color=color)
+    if result.z is not None and len(result.lines):
+        obs = (result.lines["wavelength_vacuum"] * (1 + result.z))
+        if result.meta.get("medium") == "air" and unit.is_equivalent(u.m):
+            from .medium import vacuum_to_air
+            obs = vacuum_to_air(obs)
+        pos = obs.to_value(unit, equivalencies=u.spectral())
+        lo, hi = ax.get_xlim()
+        pos = pos[(pos > lo) & (pos < hi)]
+        ax.plot(pos, np.full(len(pos), 0.02), "|", color="tab:green", ms=10,
+                transform=ax.get_xaxis_transform(), label=f"catalogue at z = {result.z:.5f}")
+    medium = result.meta.get("medium")
+    axis_name = "wavelength" if unit.is_equivalent(u.m) else "frequency" if unit.is_equivalent(u.Hz) \
+        else "energy"
+    axr.set_xlabel(f"{axis_name} [{unit}]" + (f" ({medium})" if axis_name == "wavelength" else ""))
+    ax.set_ylabel("flux")
+    ztxt = f"z = {result.z:.6f} ± {result.z_err:.1e}" if result.z is not None else "no redshift"
+    ax.set_title(f"{result.meta.get('source', '')}  {ztxt}  status: {result.status}", fontsize=10)
+    ax.legend(fontsize=7, loc="upper left")
+    for k, (spn, ser) in enumerate(series):
+        axz = fig.add_subplot(gs[2, k])
+        sel = [i for i in range(len(f)) if f["species"][i] == spn and f["series"][i] == ser]
+        vel = np.array([f["residual_kms"][i] for i in sel])
+        labels = [str(f["label"][i]) for i in sel]
+        errs = []
+        for i in sel:
+            c = f["center"][i]
+            e = f["center_err"][i]
+            errs.append(abs(float((e / c).to_value(u.one))) * 299792.458 if np.isfinite(e.value) else 0)
+        axz.errorbar(range(len(sel)), vel, yerr=errs, fmt="o", ms=3)
+        axz.axhline(0, color="0.5", lw=0.8)
+        axz.set_xticks(range(len(sel)))
+        axz.set_xticklabels(labels, rotation=90, fontsize=7)
+        axz.set_title(f"{spn} {ser}", fontsize=8)
+        axz.set_ylabel("residual [km/s]", fontsize=7)
+    fig.savefig(path_png, dpi=110, bbox_inches="tight")
+    fig.savefig(path_svg, bbox_inches="tight")
+    plt.close(fig)
+
+
+def write_report(result, folder, *, force=False, source=""):
+    """Write features.csv, features.ecsv, summary.json, spectrum.png/.svg and report.html."""
+    folder = Path(folder)
+    names = ["features.csv", "features.ecsv", "summary.json", "spectrum.png", "spectrum.svg",
+             "report.html"]
+    if not force:
+        existing = [n for n in names if (folder / n).exists()]
+        if existing:
+            raise OutputExistsError(f"{folder / existing[0]}: exists; use --force to overwrite")
+    folder.mkdir(parents=True, exist_ok=True)
+    result.meta["source"] = source
+    t = result.features.copy()
+    t.meta = {k: v for k, v in result.meta.items() if k != "catalogue"}
+    t.meta["medium"] = result.meta.get("medium")
+    t.meta["catalogue"] = {k: v for k, v in result.meta.get("catalogue", {}).items()
+                           if isinstance(v, (str, int, float, list, type(None)))}
+    from astropy.table import Table
+
+    plain = Table(t)
+    plain.meta = {}
+    plain.write(folder / "features.csv", format="ascii.csv", overwrite=True)
+    t.write(folder / "features.ecsv", format="ascii.ecsv", overwrite=True)
+    summ = summary(result)
+    (folder / "summary.json").write_text(json.dumps(summ, indent=1, ensure_ascii=False,
+                                                    default=json_default))
+    _plot(result, folder / "spectrum.png", folder / "spectrum.svg")
+    png = base64.b64encode((folder / "spectrum.png").read_bytes()).decode()
+    def _row(r):
+        resid = "" if r["residual_kms"] is None else f"{r['residual_kms']:.1f}"
+        name = r["label"] or r["user_line"] or "—"
+        return (f"<tr><td>{r['center']:.6g}</td><td>{(r['center_err'] or 0):.2g}</td>"
+                f"<td>{r['kind']}</td><td>{r['snr']:.1f}</td><td>{name}</td>"
+                f"<td>{r['species'] or ''}</td><td>{resid}</td><td>{r['score']:.2f}</td>"
+                f"<td>{r['flags']}</td></tr>")
+
+    rows = "\n".join(_row(r) for r in summ["features"])
+    ztxt = (f"z = {summ['z']:.6f} ± {summ['z_err']:.1e} (velocity {summ['velocity_kms']:.1f} km/s, "
+            f"{summ['velocity_convention']} convention)" if summ["z"] is not None else "no redshift")
+    html = f"""<!DOCTYPE html><html><head><meta charset="utf-8"><title>linefinder report</title>
+<style>body{{font-family:sans-serif;margin:2em}}table{{border-collapse:collapse}}
+td,th{{border:1px solid #ccc;padding:2px 6px;font-size:90%}}</style></head><body>
+<h1>linefinder report</h1><p>{source}</p><p><b>{ztxt}</b>, status <b>{summ['status']}</b>;
+{summ['n_lines']} lines matched; medium of wavelengths: {summ['medium']}.</p>
+<img src="data:image/png;base64,{png}" style="max-width:100%">
+<h2>Features ({summ['unit']})</h2><table><tr><th>center</th><th>±</th><th>kind</th><th>S/N</th>
+<th>identification</th><th>species</th><th>residual km/s</th><th>score</th><th>flags</th></tr>
+{rows}</table><p>Figures are estimates; for a real plasma device or instrument rely on the
+facility's calibrated diagnostics.</p></body></html>"""
+    (folder / "report.html").write_text(html)
+    return [folder / n for n in names]
