@@ -43,12 +43,15 @@ def is_fits(path):
 
 
 def _open(path):
+    hdul = None
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("error")
-            hdul = fits.open(path, memmap=False, lazy_load_hdus=False)
-            for h in hdul:
-                _ = h.data  # force reading: truncated files fail here
+            with open(path, "rb") as fh:
+                hdul = fits.open(fh, memmap=False, lazy_load_hdus=False)
+                for h in hdul:
+                    _ = h.data  # force reading: truncated files fail here
+                hdul = fits.HDUList([h.copy() for h in hdul])
         return hdul
     except FileNotFoundError:
         raise

@@ -1,0 +1,101 @@
+"""End-to-end: readers, features, redshift and identification on bundled and synthetic data."""
+
+import json
+
+import numpy as np
+import pytest
+from astropy import units as u
+
+from linefinder.cli import main
+from linefinder.features import find_features
+from linefinder.readers import read_input
+from linefinder.samples import sample_path
+from linefinder.spectrum import SpectrumData
+
+
+def test_demo_recovers_truth(tmp_path, capsys):
+    out = tmp_path / "demo"
+    assert main(["demo", "-o", str(out)]) == 0
+    summary = json.loads((out / "summary.json").read_text())
+    truth = json.loads(sample_path("emission_galaxy.fits.truth.json").read_text())
+    assert summary["status"] == "secure"
+    assert abs(summary["z"] - truth["z"]) < 5e-4 * (1 + truth["z"])
+    assert {"Hα", "Hβ", "Hγ"} <= set(summary["lines"])
+    for name in ("report.html", "spectrum.png", "spectrum.svg", "features.csv", "features.ecsv"):
+        assert (out / name).stat().st_size > 0
+    assert main(["demo", "-o", str(out)]) == 2     # nothing is overwritten without --force
+
+
+def test_radio_velocity(capsys):
+    assert main(["redshift", str(sample_path("radio_rrl.csv")), "--format", "json"]) == 0
+    res = json.loads(capsys.readouterr().out)
+    for key in ("z", "z_err", "status", "velocity_kms", "lines", "alternatives"):
+        assert key in res
+    # injected: v_LSR = +42.5 km/s, radio convention (sample ground truth)
+    assert res["velocity_kms"] == pytest.approx(42.5, abs=3 * res["velocity_err_kms"] + 0.5)
+    assert "H109α" in res["lines"]
+
+
+def test_identify_json_contract(capsys):
+    assert main(["identify", str(sample_path("emission_galaxy.fits")), "--mask-sky",
+                 "--format", "json"]) == 0
+    res = json.loads(capsys.readouterr().out)
+    f = res["features"][0]
+    for key in ("center", "center_err", "kind", "snr", "label", "species", "n_lower", "n_upper",
+                "residual_kms", "score", "alternatives"):
+        assert key in f
+    assert "unidentified" in res
+    ha = [r for r in res["features"] if r["label"] == "Hα"][0]
+    assert ha["species"] == "H I" and (ha["n_lower"], ha["n_upper"]) == (2, 3)
+
+
+def test_featureless_spectrum_status_none(rng, capsys, tmp_path):
+    x = np.linspace(4000, 7000, 3000)
+    path = tmp_path / "flat.csv"
+    path.write_text("wavelength [Angstrom],flux,err\n" + "\n".join(
+        f"{a},{b},0.1" for a, b in zip(x, 1 + rng.normal(0, 0.1, len(x)))))
+    assert main(["redshift", str(path), "--format", "json"]) == 0
+    assert json.loads(capsys.readouterr().out)["status"] == "none"
+
+
+def test_centre_errors_are_honest(rng):
+    # scatter of measured centres matches the reported 1-sigma within 20 % (injected lines)
+    x = np.arange(3000.0)
+    centres, errs = [], []
+    for _ in range(150):
+        y = 1 + 0.8 * np.exp(-0.5 * ((x - 1500.3) / 2.0) ** 2) + rng.normal(0, 0.1, len(x))
+        spec = SpectrumData(x * u.AA, y * u.adu, np.full(len(x), 0.1) * u.adu,
+                            meta={"resolution": 1500 / (2.0 * 2.3548), "source": "synthetic"})
+        t = find_features(spec, kinds=("emission",)).features
+        k = np.argmin(np.abs(t["center"].value - 1500.3))
+        centres.append(t["center"][k].value)
+        errs.append(t["center_err"][k].value)
+    ratio = np.std(centres) / np.median(errs)
+    assert 0.8 < ratio < 1.2
+
+
+def test_noise_only_no_detections(rng):
+    x = np.arange(20000.0)
+    spec = SpectrumData(x * u.AA, (1 + rng.normal(0, 0.05, len(x))) * u.adu, meta={"source": "noise"})
+    assert len(find_features(spec).features) <= 1
+
+
+@pytest.mark.parametrize("name", ["emission_galaxy.fits", "hot_star.fits", "hd_discharge.csv",
+                                  "xray_cluster.fits", "radio_rrl.csv"])
+def test_samples_read(name):
+    spec = read_input(sample_path(name))
+    assert len(spec) > 500 and spec.meta["medium"] in ("air", "vacuum")
+
+
+@pytest.mark.parametrize("argv", [["peaks", "missing.fits"], ["identify", "missing.csv"]])
+def test_bad_files_exit_2(argv, capsys):
+    assert main(argv) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "missing" in err[0]
+
+
+def test_corrupt_fits(tmp_path, capsys):
+    p = tmp_path / "broken.fits"
+    p.write_bytes(sample_path("emission_galaxy.fits").read_bytes()[:5000])
+    assert main(["peaks", str(p)]) == 2
+    assert str(p) in capsys.readouterr().err
