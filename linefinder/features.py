@@ -249,8 +249,11 @@ def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorpt
         est_px = float(np.median(estimated_widths))
         R = float(np.median(x_all / (est_px * np.abs(np.gradient(x_all)))))
         res_source = "estimated from the narrowest strong features"
-        return find_features(spec, snr=snr, resolution=R, kinds=kinds, knot_px=knot_px,
-                             min_separation_px=min_separation_px)._with(res_source)
+        again = find_features(spec, snr=snr, resolution=R, kinds=kinds, knot_px=knot_px,
+                              min_separation_px=min_separation_px)
+        again.features.meta["resolution_source"] = res_source
+        again.meta["resolution_source"] = res_source
+        return again
     table = _table(rows, spec, cont_all, kinds)
     table.meta.update({"source": spec.source, "medium": spec.medium,
                        "medium_source": spec.meta.get("medium_source"),
@@ -260,15 +263,6 @@ def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorpt
                        "n_pixels": len(y_all), "n_masked": int(spec.mask.sum())})
     return FeatureResult(features=table, spectrum=spec, continuum=cont_all, noise=sig_all,
                          meta=dict(table.meta))
-
-
-def _with(self, res_source):
-    self.features.meta["resolution_source"] = res_source
-    self.meta["resolution_source"] = res_source
-    return self
-
-
-FeatureResult._with = _with
 
 
 def _exclusion(feats, n, fallback, half_widths=2.5):

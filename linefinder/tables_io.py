@@ -31,8 +31,6 @@ def check_writable(path, *, force=False):
     path = Path(path)
     if path.exists() and not force:
         raise OutputExistsError(f"{path}: exists; use --force to overwrite")
-    if path.suffix.lower() not in FORMATS_BY_SUFFIX and path.suffix.lower() != "":
-        pass
     return path
 
 
