@@ -87,8 +87,10 @@ def _pairs(lower, upper):
 def _rest_arrays(sp, lower, upper, fine):
     """Rest-frame arrays of one species: positions (Hz), atomic data, labels."""
     arrays = _atomic_arrays(sp, lower, upper, fine)
-    rest_vac_nm = K.C / arrays["frequency"] * 1e9
-    conv = conventional_wavelength(rest_vac_nm * u.nm).to_value(u.AA)
+    if sp.Z == 1 or sp.kind == "rydberg":
+        conv = np.zeros(len(arrays["frequency"]))   # hydrogen labels do not use the wavelength
+    else:
+        conv = conventional_wavelength(K.C / arrays["frequency"] * 1e10 * u.AA).to_value(u.AA)
     arrays["label"] = line_labels(sp, arrays["n_lower"], arrays["n_upper"], conv)
     arrays["series"] = series_names(arrays["n_lower"])
     return arrays
@@ -224,20 +226,20 @@ def build_catalogue(species, lower, upper, *, fine=False, medium="vacuum", a_val
     if resolution is not None and not (resolution > 0):
         raise ValueError("resolving power R must be positive")
     factor = wavelength_factor(z=z, velocity=velocity, convention=velocity_convention)
-    tables = []
+    parts = []
     for name in names:
         sp = parse_species(name)
         if sp.kind == "rydberg" and lower[0] < RYDBERG_MIN_N:
             warnings.warn(f"{sp.name}: lines with n_lower < {RYDBERG_MIN_N} are computed as hydrogenic "
                           "but the real atom's quantum defects shift its low-l levels", AccuracyWarning)
         arrays = _cached_rest_arrays(sp, lower, upper, fine, cache)
-        tables.append(_species_table(sp, arrays, fine=fine, factor=factor, formula=formula,
-                                     air_conditions=air_conditions, wavelength_range=wavelength_range,
-                                     min_a=min_a, min_intensity=min_intensity, resolution=resolution))
-    from astropy.table import vstack
-
-    table = tables[0] if len(tables) == 1 else vstack(tables, metadata_conflicts="silent")
-    table.sort("wavelength_vacuum")
+        parts.append(_species_columns(sp, arrays, fine=fine, factor=factor, formula=formula,
+                                      air_conditions=air_conditions,
+                                      wavelength_range=wavelength_range, min_a=min_a,
+                                      min_intensity=min_intensity, resolution=resolution))
+    columns = {key: np.concatenate([part[key] for part in parts]) for key in parts[0]}
+    order = np.argsort(columns["wavelength_vacuum"], kind="stable")
+    table = _assemble(columns, order, fine=fine, a_values=a_values)
     if medium == "vacuum":
         table["wavelength"] = table["wavelength_vacuum"]
     elif medium == "air":
@@ -246,10 +248,6 @@ def build_catalogue(species, lower, upper, *, fine=False, medium="vacuum", a_val
         wv = table["wavelength_vacuum"].to_value(u.nm)
         use_air = (wv >= NIST_AIR_RANGE_NM[0]) & (wv <= NIST_AIR_RANGE_NM[1])
         table["wavelength"] = np.where(use_air, table["wavelength_air"].to_value(u.nm), wv) * u.nm
-    if not a_values:
-        for col in ("a_ul", "f_lu", "line_strength", "rel_intensity"):
-            if col in table.colnames:
-                table.remove_column(col)
     table.meta.clear()
     table.meta.update({
         "species": [parse_species(n).name for n in names],
@@ -266,7 +264,7 @@ def build_catalogue(species, lower, upper, *, fine=False, medium="vacuum", a_val
     return table
 
 
-def _species_table(sp, arrays, *, fine, factor, formula, air_conditions, wavelength_range,
+def _species_columns(sp, arrays, *, fine, factor, formula, air_conditions, wavelength_range,
                    min_a, min_intensity, resolution):
     arrays = dict(arrays)
     freq_obs = arrays["frequency"] / factor
@@ -293,44 +291,63 @@ def _species_table(sp, arrays, *, fine, factor, formula, air_conditions, wavelen
         keep &= rel >= float(min_intensity)
     arrays = {k: v[keep] for k, v in arrays.items()}
     wl_nm, freq_obs, rel, count = wl_nm[keep], freq_obs[keep], rel[keep], count[keep]
-    rest_vac_nm = K.C / arrays["frequency"] * 1e9
     air = vacuum_to_air(wl_nm * u.nm, formula=formula, conditions=air_conditions).to_value(u.nm)
     n = len(wl_nm)
-    t = QTable()
-    t["species"] = np.full(n, sp.name)
-    t["label"] = arrays["label"]
-    t["series"] = arrays["series"]
-    t["n_lower"] = arrays["n_lower"].astype(int)
-    for which in ("lower", "upper"):
-        if which == "upper":
-            t["n_upper"] = arrays["n_upper"].astype(int)
-        if fine:
-            mask = count > 1
-            t[f"l_{which}"] = MaskedColumn(arrays[f"l_{which}"].astype(int), mask=mask)
-            t[f"j_{which}"] = MaskedColumn(arrays[f"j_{which}"].astype(float), mask=mask)
-        else:
-            t[f"l_{which}"] = MaskedColumn(np.zeros(n, dtype=int), mask=np.ones(n, bool))
-            t[f"j_{which}"] = MaskedColumn(np.zeros(n, dtype=float), mask=np.ones(n, bool))
-    t["wavelength_vacuum"] = wl_nm * u.nm
-    t["wavelength_air"] = air * u.nm
-    t["wavenumber"] = freq_obs / K.HZ_PER_CM * u.cm ** -1
-    t["frequency"] = freq_obs * u.Hz
-    t["energy"] = freq_obs / K.HZ_PER_EV * u.eV
-    t["a_ul"] = arrays["a_ul"] * u.s ** -1
-    t["f_lu"] = arrays["f_lu"]
-    t["g_lower"] = arrays["g_lower"].astype(int)
-    t["g_upper"] = arrays["g_upper"].astype(int)
-    t["line_strength"] = arrays["line_strength"] * u.C ** 2 * u.m ** 2
-    t["rel_intensity"] = rel
-    t["rest_wavelength_vacuum"] = rest_vac_nm * u.nm
-    t["blend"] = count
+    cols = {"species": np.full(n, sp.name), "label": arrays["label"], "series": arrays["series"],
+            "n_lower": arrays["n_lower"].astype(int), "n_upper": arrays["n_upper"].astype(int),
+            "wavelength_vacuum": wl_nm, "wavelength_air": air, "frequency": freq_obs,
+            "a_ul": arrays["a_ul"], "f_lu": arrays["f_lu"], "g_lower": arrays["g_lower"].astype(int),
+            "g_upper": arrays["g_upper"].astype(int), "line_strength": arrays["line_strength"],
+            "rel_intensity": rel, "rest_wavelength_vacuum": K.C / arrays["frequency"] * 1e9,
+            "blend": count}
     if fine:
+        for which in ("lower", "upper"):
+            cols[f"l_{which}"] = arrays[f"l_{which}"].astype(int)
+            cols[f"j_{which}"] = arrays[f"j_{which}"].astype(float)
         lab = []
         for i in range(n):
             if count[i] > 1:
                 lab.append(f"{count[i]} components")
             else:
-                lab.append(f"{level_label(t['n_upper'][i], int(arrays['l_upper'][i]), arrays['j_upper'][i])}"
-                           f"-{level_label(t['n_lower'][i], int(arrays['l_lower'][i]), arrays['j_lower'][i])}")
-        t["transition"] = np.array(lab, dtype=str) if n else np.array([], dtype=str)
+                lab.append(f"{level_label(cols['n_upper'][i], cols['l_upper'][i], cols['j_upper'][i])}"
+                           f"-{level_label(cols['n_lower'][i], cols['l_lower'][i], cols['j_lower'][i])}")
+        cols["transition"] = np.array(lab, dtype=str) if n else np.array([], dtype=str)
+    return cols
+
+
+def _assemble(cols, order, *, fine, a_values):
+    """One QTable from the concatenated per-species columns, in wavelength order."""
+    c = {key: val[order] for key, val in cols.items()}
+    n = len(order)
+    t = QTable()
+    for key in ("species", "label", "series", "n_lower"):
+        t[key] = c[key]
+    for which in ("lower", "upper"):
+        if which == "upper":
+            t["n_upper"] = c["n_upper"]
+        if fine:
+            mask = c["blend"] > 1
+            t[f"l_{which}"] = MaskedColumn(c[f"l_{which}"], mask=mask)
+            t[f"j_{which}"] = MaskedColumn(c[f"j_{which}"], mask=mask)
+        else:
+            t[f"l_{which}"] = MaskedColumn(np.zeros(n, dtype=int), mask=np.ones(n, bool))
+            t[f"j_{which}"] = MaskedColumn(np.zeros(n, dtype=float), mask=np.ones(n, bool))
+    freq = c["frequency"]
+    t["wavelength_vacuum"] = c["wavelength_vacuum"] * u.nm
+    t["wavelength_air"] = c["wavelength_air"] * u.nm
+    t["wavenumber"] = freq / K.HZ_PER_CM * u.cm ** -1
+    t["frequency"] = freq * u.Hz
+    t["energy"] = freq / K.HZ_PER_EV * u.eV
+    if a_values:
+        t["a_ul"] = c["a_ul"] * u.s ** -1
+        t["f_lu"] = c["f_lu"]
+    t["g_lower"] = c["g_lower"]
+    t["g_upper"] = c["g_upper"]
+    if a_values:
+        t["line_strength"] = c["line_strength"] * u.C ** 2 * u.m ** 2
+        t["rel_intensity"] = c["rel_intensity"]
+    t["rest_wavelength_vacuum"] = c["rest_wavelength_vacuum"] * u.nm
+    t["blend"] = c["blend"]
+    if fine:
+        t["transition"] = c["transition"]
     return t

@@ -56,15 +56,41 @@ def line_label(species, n_lower, n_upper, wavelength_conv_angstrom=None):
 
 
 def line_labels(species, n_lower, n_upper, wavelength_conv_angstrom):
-    """Vectorised `line_label` (hydrogen labels depend only on n, so each is made once)."""
+    """Vectorised `line_label`: the same text, built with array string operations."""
     nl = np.asarray(n_lower, dtype=np.int64)
     nu = np.asarray(n_upper, dtype=np.int64)
+    if not len(nl):
+        return np.array([], dtype=str)
     conv = np.asarray(wavelength_conv_angstrom, dtype=float)
-    wl_key = np.zeros(len(nl)) if (species.Z == 1 or species.kind == "rydberg") else np.rint(conv)
-    keys = (nl * 4096 + nu) * 1.0e7 + np.where(np.isfinite(wl_key), wl_key, -1)
-    uniq, first, inverse = np.unique(keys, return_index=True, return_inverse=True)
-    made = np.array([line_label(species, nl[i], nu[i], conv[i]) for i in first], dtype=str)
-    return made[inverse] if len(made) else np.array([], dtype=str)
+    dn = nu - nl
+    greek = np.array([_greek(d) for d in range(1, int(dn.max()) + 1)])[dn - 1]
+    out = np.empty(len(nl), dtype=object)
+    radio = nl >= RADIO_FROM
+    if np.any(radio):
+        out[radio] = np.char.add(np.char.add(species.radio_prefix, nl[radio].astype(str)),
+                                 greek[radio])
+    optical = ~radio
+    hydrogen = species.Z == 1 or species.kind == "rydberg"
+    if hydrogen and species.kind == "rydberg" and species.symbol != "H":
+        sel = optical
+        out[sel] = np.char.add(np.char.add(species.radio_prefix, nl[sel].astype(str)), greek[sel])
+    elif hydrogen:
+        base = species.symbol if species.symbol != "H" else ""
+        prefixes = {k: (base if (base and k == 2) else base + v) for k, v in _PREFIX.items()}
+        prefix = np.array([prefixes.get(int(k), "") for k in range(RADIO_FROM)])
+        pre = prefix[np.where(optical, nl, 0)]
+        tail = np.where(dn <= 5, greek, nu.astype(str))
+        out[optical] = np.char.add(pre[optical], tail[optical])
+    else:
+        lyman = optical & (nl == 1)
+        out[lyman] = np.char.add(f"{species.name} Ly", greek[lyman])
+        rest = optical & (nl > 1)
+        good = rest & np.isfinite(conv)
+        out[good] = np.char.add(f"{species.name} ", np.rint(conv[good]).astype(np.int64).astype(str))
+        bad = rest & ~np.isfinite(conv)
+        if np.any(bad):
+            out[bad] = [f"{species.name} {u}-{l}" for u, l in zip(nu[bad], nl[bad])]
+    return out.astype(str)
 
 
 def series_names(n_lower):

@@ -35,7 +35,7 @@ _F_FACTOR = sc.epsilon_0 * sc.m_e * sc.c ** 3 / (2 * np.pi * sc.e ** 2)
 
 def einstein_a(nu_hz, s_si, g_upper):
     """Einstein A (s^-1) from frequency (Hz), line strength (C^2 m^2) and g_u."""
-    return _A_FACTOR * nu_hz ** 3 * s_si / g_upper
+    return _A_FACTOR * (nu_hz * nu_hz * nu_hz) * s_si / g_upper
 
 
 def oscillator_strength(nu_hz, a_ul, g_upper, g_lower):
@@ -75,7 +75,7 @@ def _radial_rows(nu, nl):
     if hit is not None:
         return hit
     rows = _compute_radial_rows(nu, nl)
-    if len(_ROW_MEMO) >= 4:
+    if len(_ROW_MEMO) >= 8:
         _ROW_MEMO.pop(next(iter(_ROW_MEMO)))
     _ROW_MEMO[key] = rows
     return rows
@@ -95,6 +95,38 @@ def _compute_radial_rows(nu, nl):
     for arr in (p, lu, ll, rad):
         arr.flags.writeable = False
     return p, lu, ll, rad
+
+
+def _multiplet_plan(nu, nl):
+    """Species-independent part of `multiplets`: per doublet branch, the pair index,
+    flat indices of the upper and lower states in a `_LevelGrid` and the line
+    strength (atomic units).  Kept in the same memo as the radial rows."""
+    key = ("plan", nu.tobytes(), nl.tobytes())
+    hit = _ROW_MEMO.get(key)
+    if hit is not None:
+        return hit
+    p, lu, ll, rad = _radial_rows(nu, nl)
+    big, split = _doublet_split(lu, ll)
+    shape = (int(nu.max()) + 1, int(lu.max()) + 1, 2)
+    n_u = nu[p]
+    n_l = nl[p]
+    s_row = 2 * big * rad ** 2
+    parts = []
+    for tju, tjl, frac, ok in split:
+        iu = np.ravel_multi_index((n_u[ok], lu[ok], (tju[ok] > 2 * lu[ok]).astype(np.intp)), shape)
+        il = np.ravel_multi_index((n_l[ok], ll[ok], (tjl[ok] > 2 * ll[ok]).astype(np.intp)), shape)
+        parts.append((p[ok], iu, il, (frac * s_row)[ok]))
+    pp, iu, il, s_c = (np.concatenate([q[i] for q in parts]) for i in range(4))
+    m = len(nu)
+    plan = {"pair": pp, "upper": iu, "lower": il, "s": s_c,
+            "sum_s": np.bincount(pp, weights=s_c, minlength=m),
+            "count": np.bincount(pp, minlength=m)}
+    for arr in plan.values():
+        arr.flags.writeable = False
+    if len(_ROW_MEMO) >= 8:
+        _ROW_MEMO.pop(next(iter(_ROW_MEMO)))
+    _ROW_MEMO[key] = (shape, plan)
+    return shape, plan
 
 
 def _doublet_split(lu, ll):
@@ -162,28 +194,15 @@ def multiplets(species, n_upper, n_lower):
     nu = np.atleast_1d(np.asarray(n_upper, dtype=np.int64))
     nl = np.atleast_1d(np.asarray(n_lower, dtype=np.int64))
     m = len(nu)
-    p, lu, ll, rad = _radial_rows(nu, nl)
-    big, split = _doublet_split(lu, ll)
-    grid = _LevelGrid(sp, int(nu.max()), int(lu.max()))
-    n_u = nu[p]
-    n_l = nl[p]
-    s_row = 2 * big * rad ** 2
-    sum_s = np.zeros(m)
-    sum_nu3s = np.zeros(m)     # proportional to sum g_u A_u
-    sum_nu4s = np.zeros(m)     # for the weighted mean frequency
-    sum_nus = np.zeros(m)      # proportional to sum g_l f_l
-    count = np.zeros(m, dtype=np.int64)
-    for tju, tjl, frac, ok in split:
-        sel = ok
-        pp = p[sel]
-        freq = grid(n_u[sel], lu[sel], tju[sel]) - grid(n_l[sel], ll[sel], tjl[sel])
-        s_c = (frac * s_row)[sel]
-        nu3s = freq ** 3 * s_c
-        sum_s += np.bincount(pp, weights=s_c, minlength=m)
-        sum_nu3s += np.bincount(pp, weights=nu3s, minlength=m)
-        sum_nu4s += np.bincount(pp, weights=nu3s * freq, minlength=m)
-        sum_nus += np.bincount(pp, weights=freq * s_c, minlength=m)
-        count += np.bincount(pp, minlength=m)
+    shape, plan = _multiplet_plan(nu, nl)
+    grid = _LevelGrid(sp, shape[0] - 1, shape[1] - 1).energy.ravel()
+    pp, s_c = plan["pair"], plan["s"]
+    freq = grid[plan["upper"]] - grid[plan["lower"]]
+    nu3s = freq * freq * freq * s_c   # not freq ** 3: numpy's general power is slow
+    sum_s, count = plan["sum_s"], plan["count"]
+    sum_nu3s = np.bincount(pp, weights=nu3s, minlength=m)          # proportional to sum g_u A_u
+    sum_nu4s = np.bincount(pp, weights=nu3s * freq, minlength=m)   # for the weighted mean frequency
+    sum_nus = np.bincount(pp, weights=freq * s_c, minlength=m)     # proportional to sum g_l f_l
     unit = _dipole_unit_si(sp)
     g_u = 2.0 * nu ** 2
     g_l = 2.0 * nl ** 2
