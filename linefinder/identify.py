@@ -225,16 +225,29 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     status = classify(sols)
     best_s = sols[0].s if sols else (np.log1p(z) if z is not None else None)
     out = _feature_table(feats, sky, mask_sky)
+    # user lines compete in the same assignment (strength 1: the user expects them), so a
+    # weak hydrogenic line cannot take a feature that the user's list explains better
+    x_user = np.log([line["rest_vacuum_m"] for line in extra_lines]) if extra_lines else np.zeros(0)
+    x_all = np.concatenate([x, x_user])
+    strength_all = np.concatenate([strength, np.ones(len(x_user))])
+    group_all = np.concatenate([np.asarray(group, dtype=str),
+                                np.array([f"user|{k}" for k in range(len(x_user))], dtype=str)])
+    s_user = best_s if best_s is not None else 0.0
     if best_s is not None and status != "none" or (z is not None and best_s is not None):
         idx = np.flatnonzero(use)
         flux = np.abs(np.asarray(feats["flux"].value if hasattr(feats["flux"], "value")
                                  else feats["flux"], dtype=float))
         blend = np.array(["blend" in str(f) for f in feats["flags"]])
-        best, alts, scores, resid = assign(y[idx], sy[idx], flux[idx], blend[idx], x, strength,
-                                           group, best_s)
-        _fill(out, idx, best, alts, scores, resid, cat, sy[idx], y[idx], best_s)
-    if extra_lines:
-        _match_user(out, extra_lines, y, sy, best_s if best_s is not None else 0.0)
+        res = assign(y[idx], sy[idx], flux[idx], blend[idx], x_all, strength_all, group_all, best_s)
+        _fill(out, idx, res, cat, y[idx], best_s, extra_lines)
+    elif extra_lines and len(feats):
+        # no hydrogenic solution: the user's lines are still matched at the rest frame (or z)
+        idx = np.arange(len(feats))
+        res = assign(y, sy, np.ones(len(y)), np.zeros(len(y), bool), x_user, np.ones(len(x_user)),
+                     group_all[len(x):], s_user)
+        res.best = np.where(res.best >= 0, res.best + len(x), -1)
+        res.alt_index[:] = -1
+        _fill(out, idx, res, cat, y, s_user, extra_lines)
     systems = []
     if find_systems and z is None and status == "secure":
         rest = np.flatnonzero(use & (np.asarray(out["label"]) == ""))
@@ -246,9 +259,9 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
             if more and classify(more) == "secure" and more[0].n_lines >= 4 and \
                     more[0].score >= 0.5 * primary.score:
                 systems.append(more[0])
-                b2, a2, sc2, r2 = assign(y[rest], sy[rest], np.ones(len(rest)),
-                                         np.zeros(len(rest), bool), x, strength, group, more[0].s)
-                _fill(out, rest, b2, a2, sc2, r2, cat, sy[rest], y[rest], more[0].s, system=2)
+                res2 = assign(y[rest], sy[rest], np.ones(len(rest)), np.zeros(len(rest), bool), x,
+                              strength, group, more[0].s)
+                _fill(out, rest, res2, cat, y[rest], more[0].s, None, system=2)
     result = Identification(features=out, status=status, solutions=sols, lines=cat,
                             feature_result=feature_result, systems=systems)
     if best_s is not None and (status != "none" or z is not None):
@@ -322,48 +335,41 @@ def _feature_table(feats, sky, mask_sky):
     return out
 
 
-def _fill(out, idx, best, alts, scores, resid, cat, sy, y, s, system=1):
-    for k, i in enumerate(idx):
-        j = best[k]
-        if j < 0:
-            continue
-        row = cat[j]
-        out["label"][i] = str(row["label"])
-        out["species"][i] = str(row["species"])
-        out["series"][i] = str(row["series"])
-        out["n_lower"][i] = int(row["n_lower"])
-        out["n_upper"][i] = int(row["n_upper"])
-        out["rest_wavelength_vacuum"][i] = row["wavelength_vacuum"].to(u.nm)
-        dln = y[k] - s - np.log(row["wavelength_vacuum"].to_value(u.m))
-        out["residual_kms"][i] = float(C_KMS * dln)
-        c = out["center"][i]
-        pred_m = np.exp(s) * row["wavelength_vacuum"].to_value(u.m)
-        pred = (pred_m * u.m).to(c.unit, equivalencies=u.spectral())
-        if c.unit.is_equivalent(u.m):
-            out["residual"][i] = float(c.value * (1 - np.exp(-dln))) * c.unit
-        else:
-            out["residual"][i] = c - pred
-        out["residual_sigma"][i] = float(resid[k])
-        out["score"][i] = float(scores[k])
-        out["system"][i] = system
-        out["alternatives"][i] = "; ".join(f"{cat['species'][a]} {cat['label'][a]} ({p:.2f})"
-                                           for a, p in alts[k])
+def _fill(out, idx, res, cat, y, s, extra, system=1):
+    """Write an `Assignment` into the feature table (line indices past the catalogue are
+    the user's lines)."""
+    ncat = len(cat)
+    lam_cat = cat["wavelength_vacuum"].to_value(u.m) if ncat else np.zeros(0)
     out.meta.setdefault("alternatives_detail", {})
     for k, i in enumerate(idx):
+        j = int(res.best[k])
+        alts = [(a, p) for a, p in res.alternatives(k) if a < ncat]
         out.meta["alternatives_detail"][int(i)] = [
             {"label": str(cat["label"][a]), "species": str(cat["species"][a]),
              "n_lower": int(cat["n_lower"][a]), "n_upper": int(cat["n_upper"][a]), "score": float(p)}
-            for a, p in alts[k]]
-
-
-def _match_user(out, extra, y, sy, s, tol=3.0):
-    for i in range(len(out)):
-        if out["label"][i]:
+            for a, p in alts]
+        if j < 0:
             continue
-        best = None
-        for line in extra:
-            d = (y[i] - s - np.log(line["rest_vacuum_m"])) / sy[i]
-            if abs(d) < tol and (best is None or abs(d) < best[1]):
-                best = (line["name"], abs(d))
-        if best:
-            out["user_line"][i] = best[0]
+        if j >= ncat:
+            out["user_line"][i] = extra[j - ncat]["name"]
+            out["score"][i] = float(res.score[k])
+            continue
+        out["label"][i] = str(cat["label"][j])
+        out["species"][i] = str(cat["species"][j])
+        out["series"][i] = str(cat["series"][j])
+        out["n_lower"][i] = int(cat["n_lower"][j])
+        out["n_upper"][i] = int(cat["n_upper"][j])
+        out["rest_wavelength_vacuum"][i] = lam_cat[j] * 1e9 * u.nm
+        dln = y[k] - s - np.log(lam_cat[j])
+        out["residual_kms"][i] = float(C_KMS * dln)
+        c = out["center"][i]
+        if c.unit.is_equivalent(u.m):
+            out["residual"][i] = float(c.value * (1 - np.exp(-dln))) * c.unit
+        else:
+            pred = (np.exp(s) * lam_cat[j] * u.m).to(c.unit, equivalencies=u.spectral())
+            out["residual"][i] = c - pred
+        out["residual_sigma"][i] = float(res.resid[k])
+        out["score"][i] = float(res.score[k])
+        out["system"][i] = system
+        out["alternatives"][i] = "; ".join(f"{cat['species'][a]} {cat['label'][a]} ({p:.2f})"
+                                           for a, p in alts)

@@ -9,9 +9,13 @@ of its group) times an intensity-plausibility prior; "i is none of them" has
 the likelihood of a 3-sigma miss, exp(-4.5).  The probability-like score of
 an identification is its likelihood over the sum of all hypotheses.
 
-Assignment is global (scipy's linear_sum_assignment on -log likelihoods),
-so one catalogue line explains at most one resolved feature; features
-flagged ``blend`` by the measurement may share a line.
+Assignment is global, so one catalogue line explains at most one resolved
+feature; features flagged ``blend`` by the measurement may share a line.  It
+is sort/search based: each feature's candidate lines come from a binary
+search of the sorted catalogue (never all pairs), every feature takes its
+best hypothesis, and only where two features want the same line is the
+small group of features that share candidates solved exactly (scipy's
+linear_sum_assignment on -log likelihoods, with a "none" column per feature).
 
 Intensity plausibility: within each species and series, observed fluxes
 divided by expected strengths (Case B for H I recombination lines, the
@@ -19,10 +23,12 @@ catalogue's relative intensity otherwise) should agree; a factor of 3
 either way costs one sigma-equivalent.
 """
 
+from dataclasses import dataclass
+
 import numpy as np
 from scipy.optimize import linear_sum_assignment
 
-__all__ = ["assign", "NULL_LOG_LIKELIHOOD", "CASE_B_HBETA"]
+__all__ = ["assign", "Assignment", "candidate_pairs", "NULL_LOG_LIKELIHOOD", "CASE_B_HBETA"]
 
 NULL_LOG_LIKELIHOOD = -4.5
 TOL = 4.0
@@ -33,6 +39,99 @@ CASE_B_HBETA = {(2, 3): 2.863, (2, 4): 1.0, (2, 5): 0.468, (2, 6): 0.259, (2, 7)
                 (2, 8): 0.105, (2, 9): 0.0731, (2, 10): 0.0530, (2, 11): 0.0397, (2, 12): 0.0305,
                 (3, 4): 0.332, (3, 5): 0.162, (3, 6): 0.0901, (3, 7): 0.0554, (4, 5): 0.0779,
                 (4, 6): 0.0448, (4, 7): 0.0275}
+N_ALTERNATIVES = 3
+
+
+@dataclass
+class Assignment:
+    """Result of `assign`, one entry per feature (line indices refer to the input order)."""
+    best: np.ndarray          #: line index or -1 (unidentified)
+    score: np.ndarray         #: probability-like score of the chosen line (0 if none)
+    resid: np.ndarray         #: normalised residual (y - s - x) / sigma of the chosen line
+    alt_index: np.ndarray     #: (n_features, 3) next-best line indices, -1 where fewer
+    alt_score: np.ndarray     #: (n_features, 3) their scores
+
+    def alternatives(self, i):
+        """[(line index, score), ...] of feature i, best first."""
+        return [(int(j), float(p)) for j, p in zip(self.alt_index[i], self.alt_score[i]) if j >= 0]
+
+
+def candidate_pairs(y, sy, xs, s, tol):
+    """(feature, sorted-line) pairs with |y - s - xs| < tol * sy, by binary search.
+
+    ``xs`` must be sorted.  Returns rows, cols and the normalised residuals d,
+    rows ascending.
+    """
+    lo = np.searchsorted(xs, y - s - tol * sy, side="left")
+    hi = np.searchsorted(xs, y - s + tol * sy, side="right")
+    cnt = hi - lo
+    total = int(cnt.sum())
+    rows = np.repeat(np.arange(len(y)), cnt)
+    cols = np.arange(total) - np.repeat(np.cumsum(cnt) - cnt, cnt) + np.repeat(lo, cnt)
+    d = (y[rows] - s - xs[cols]) / sy[rows]
+    keep = np.abs(d) < tol
+    return rows[keep], cols[keep], d[keep], lo, hi
+
+
+def _rank_in_runs(keys):
+    """0, 1, 2 ... within each run of equal consecutive keys."""
+    if not len(keys):
+        return np.zeros(0, dtype=np.int64)
+    first = np.ones(len(keys), dtype=bool)
+    first[1:] = keys[1:] != keys[:-1]
+    starts = np.flatnonzero(first)
+    return np.arange(len(keys)) - np.repeat(starts, np.diff(np.append(starts, len(keys))))
+
+
+def _components(lo, hi):
+    """Groups of features whose candidate windows [lo, hi) overlap (label per feature)."""
+    order = np.argsort(lo, kind="stable")
+    reach = np.maximum.accumulate(hi[order])
+    new = np.ones(len(order), dtype=bool)
+    new[1:] = lo[order][1:] >= reach[:-1]
+    label = np.empty(len(order), dtype=np.int64)
+    label[order] = np.cumsum(new) - 1
+    return label
+
+
+def _best_per_row(rows, ll, nf):
+    """Index (into the pairs) of each feature's most likely line, -1 where it has none."""
+    order = np.lexsort((-ll, rows))
+    r = rows[order]
+    first = np.ones(len(r), dtype=bool)
+    first[1:] = r[1:] != r[:-1]
+    top = np.full(nf, -1)
+    top[r[first]] = order[first]
+    return top, order, first
+
+
+def _choose(rows, cols, ll, nf, comp):
+    """Global choice: each feature its best hypothesis, exact assignment where lines collide."""
+    top, _, _ = _best_per_row(rows, ll, nf)
+    choice = np.full(nf, -1)
+    has = top >= 0
+    good = has.copy()
+    good[has] = ll[top[has]] > NULL_LOG_LIKELIHOOD
+    choice[good] = cols[top[good]]
+    taken = choice[choice >= 0]
+    uniq, counts = np.unique(taken, return_counts=True)
+    clash_lines = uniq[counts > 1]
+    if not len(clash_lines):
+        return choice
+    clash_feats = np.flatnonzero(np.isin(choice, clash_lines))
+    pair_comp = comp[rows]
+    for c in np.unique(comp[clash_feats]):
+        sel = np.flatnonzero(pair_comp == c)
+        f_ids, f_loc = np.unique(rows[sel], return_inverse=True)
+        l_ids, l_loc = np.unique(cols[sel], return_inverse=True)
+        k, m = len(f_ids), len(l_ids)
+        cost = np.full((k, m + k), 1e6)
+        cost[f_loc, l_loc] = -ll[sel]
+        cost[np.arange(k), m + np.arange(k)] = -NULL_LOG_LIKELIHOOD
+        r, cc = linear_sum_assignment(cost)
+        for a, b in zip(r, cc):
+            choice[f_ids[a]] = l_ids[b] if b < m and cost[a, b] < 1e5 else -1
+    return choice
 
 
 def assign(y, sy, flux, blend, x, strength, group, s, *, tol=TOL):
@@ -42,75 +141,85 @@ def assign(y, sy, flux, blend, x, strength, group, s, *, tol=TOL):
     flags; line log rest positions `x`, expected strengths, and a `group`
     key per line (species and series) for the intensity prior.
 
-    Returns (best, alternatives, scores, residuals): best[i] is a line index
-    or -1; alternatives[i] a list of (line, score); scores[i] the score of
-    the assignment; residuals[i] the normalised residual.
+    Returns an `Assignment`.
     """
+    y = np.asarray(y, dtype=float)
     nf, nl = len(y), len(x)
-    best = np.full(nf, -1)
-    scores = np.zeros(nf)
-    resid = np.full(nf, np.nan)
-    alts = [[] for _ in range(nf)]
+    out = Assignment(best=np.full(nf, -1), score=np.zeros(nf), resid=np.full(nf, np.nan),
+                     alt_index=np.full((nf, N_ALTERNATIVES), -1),
+                     alt_score=np.zeros((nf, N_ALTERNATIVES)))
     if nf == 0 or nl == 0:
-        return best, alts, scores, resid
-    d = (y[:, None] - s - x[None, :]) / sy[:, None]
-    near = np.abs(d) < tol
+        return out
+    sy = np.asarray(sy, dtype=float)
+    flux = np.asarray(flux, dtype=float)
+    order = np.argsort(x, kind="stable")
+    xs = np.asarray(x, dtype=float)[order]
+    st = np.asarray(strength, dtype=float)[order]
+    _, gcode = np.unique(np.asarray(group)[order], return_inverse=True)
+    rows, cols, d, lo, hi = candidate_pairs(y, sy, xs, s, tol)
+    if not len(rows):
+        return out
+    comp = _components(lo, hi)
     # the prior that a line is there at all: its expected strength (1 for the strongest of
     # its group); a weak line must sit closer than a strong one to beat "unidentified"
-    line_prior = np.log(np.clip(strength, 1e-4, 1.0))
-    loglike = np.where(near, -0.5 * d ** 2 + line_prior[None, :], -np.inf)
+    base = -0.5 * d * d + np.log(np.clip(st[cols], 1e-4, 1.0))
+    choice = np.full(nf, -1)
     for _ in range(2):   # second pass with the intensity prior from the first assignment
-        prior = _intensity_prior(best, flux, strength, group)
-        ll = loglike + prior
-        cost = np.where(np.isfinite(ll), -ll, 1e6)
-        # dummy columns: each feature may stay unidentified at the null cost
-        dummy = np.full((nf, nf), 1e6)
-        np.fill_diagonal(dummy, -NULL_LOG_LIKELIHOOD)
-        rows, cols = linear_sum_assignment(np.hstack([cost, dummy]))
-        best[:] = -1
-        for r, c in zip(rows, cols):
-            if c < nl and cost[r, c] < 1e5:
-                best[r] = c
-    # blends may share a line: a blended feature whose best line is taken keeps it too
-    for i in range(nf):
-        if best[i] < 0 and blend[i] and np.any(near[i]):
-            best[i] = int(np.argmax(loglike[i]))
-    prior = _intensity_prior(best, flux, strength, group)
-    ll = loglike + prior
-    for i in range(nf):
-        like = np.exp(ll[i][near[i]])
-        total = like.sum() + np.exp(NULL_LOG_LIKELIHOOD)
-        cand = np.flatnonzero(near[i])
-        order = cand[np.argsort(-ll[i][cand])]
-        if best[i] >= 0:
-            scores[i] = float(np.exp(ll[i, best[i]]) / total)
-            resid[i] = float(d[i, best[i]])
-        alts[i] = [(int(j), float(np.exp(ll[i, j]) / total)) for j in order if j != best[i]][:3]
-    return best, alts, scores, resid
+        ll = base + _intensity_prior(choice, flux, st, gcode, rows, cols)
+        choice = _choose(rows, cols, ll, nf, comp)
+    # blends may share a line: a blended feature left without one keeps its best candidate
+    top, _, _ = _best_per_row(rows, ll, nf)
+    blend = np.asarray(blend, dtype=bool)
+    lone = (choice < 0) & blend & (top >= 0)
+    choice[lone] = cols[top[lone]]
+    ll = base + _intensity_prior(choice, flux, st, gcode, rows, cols)
+    like = np.exp(ll)
+    total = np.bincount(rows, weights=like, minlength=nf) + np.exp(NULL_LOG_LIKELIHOOD)
+    chosen_pair = np.flatnonzero(cols == choice[rows])
+    ci = rows[chosen_pair]
+    out.best[ci] = order[cols[chosen_pair]]
+    out.score[ci] = like[chosen_pair] / total[ci]
+    out.resid[ci] = d[chosen_pair]
+    # alternatives: the next most likely lines of each feature
+    _, srt, _ = _best_per_row(rows, ll, nf)
+    r = rows[srt]
+    not_best = cols[srt] != choice[r]
+    alt = srt[not_best]
+    ar = r[not_best]
+    a_rank = _rank_in_runs(ar)
+    keep = a_rank < N_ALTERNATIVES
+    out.alt_index[ar[keep], a_rank[keep]] = order[cols[alt[keep]]]
+    out.alt_score[ar[keep], a_rank[keep]] = like[alt[keep]] / total[ar[keep]]
+    return out
 
 
-def _intensity_prior(best, flux, strength, group):
-    """log prior per (feature, line): does the feature's flux fit the line's group?
+def _intensity_prior(choice, flux, strength, gcode, rows, cols):
+    """log prior per (feature, line) pair: does the feature's flux fit the line's group?
 
     The group's scale is the median of ln(flux / expected strength) over its
     lines matched in the previous pass (two at least); a feature whose ratio
     is a factor of 3 off that scale pays -0.5, a factor of 9 pays -2, capped at -8.
     """
-    nf, nl = len(best), len(strength)
-    prior = np.zeros((nf, nl))
-    scale = {}
-    for i in np.flatnonzero(best >= 0):
-        j = best[i]
-        if strength[j] > 0 and np.isfinite(flux[i]) and flux[i] > 0:
-            scale.setdefault(group[j], []).append(np.log(flux[i] / strength[j]))
-    scale = {k: float(np.median(v)) for k, v in scale.items() if len(v) >= 2}
-    if not scale:
+    prior = np.zeros(len(rows))
+    matched = np.flatnonzero(choice >= 0)
+    if not len(matched):
         return prior
-    f = np.where(np.isfinite(flux) & (flux > 0), flux, np.nan)
-    for j in range(nl):
-        g = scale.get(group[j])
-        if g is None or strength[j] <= 0:
-            continue
-        dev = (np.log(f / strength[j]) - g) / np.log(3.0)
-        prior[:, j] = np.where(np.isfinite(dev), np.maximum(-0.5 * dev ** 2, -8.0), 0.0)
+    j = choice[matched]
+    f = flux[matched]
+    ok = (strength[j] > 0) & np.isfinite(f) & (f > 0)
+    if not np.any(ok):
+        return prior
+    g = gcode[j[ok]]
+    vals = np.log(f[ok] / strength[j[ok]])
+    scale = np.full(gcode.max() + 1, np.nan)
+    for code in np.unique(g):
+        v = vals[g == code]
+        if len(v) >= 2:
+            scale[code] = np.median(v)
+    sc = scale[gcode[cols]]
+    fr = flux[rows]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        dev = (np.log(fr / strength[cols]) - sc) / np.log(3.0)
+    use = np.isfinite(dev)
+    prior[use] = np.maximum(-0.5 * dev[use] ** 2, -8.0)
     return prior
