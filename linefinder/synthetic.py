@@ -1,0 +1,194 @@
+"""Synthetic spectra with known answers, for the accuracy benchmarks and tests.
+
+Everything here is invented data in scenarios of this project's own: narrow
+emission-line sources and absorption systems at a redshift between 0 and 7,
+seen by a spectrograph of resolving power 500-50 000 in the 3000-25 000 Å
+window, with non-hydrogenic lines, night-sky residuals and cosmic-ray spikes
+injected.  Line positions come from `build_catalogue` (vacuum); the other
+lines use rest wavelengths recalled from the NIST ASD (vacuum Å, to the
+digits shown).
+
+`make_spectrum` returns a `SpectrumData` and a truth dict.  Each line's
+``snr`` in the truth is its matched-filter S/N, A/sigma * sqrt(sqrt(pi) s)
+for a Gaussian of peak A and width s pixels on white noise sigma; ``crb``
+is the Cramér-Rao bound of its centre in ln(lambda),
+dlog * sigma/A * sqrt(2 s / sqrt(pi)).
+"""
+
+import numpy as np
+from astropy import units as u
+
+from .catalogue import build_catalogue
+from .contaminants import SKY_LINES_AIR
+from .matching import CASE_B_HBETA
+from .medium import air_to_vacuum
+from .spectrum import SpectrumData
+
+__all__ = ["make_spectrum", "make_noise_spectrum", "random_parameters", "OTHER_LINES_VAC",
+           "WINDOW_AA"]
+
+C_KMS = 299792.458
+WINDOW_AA = (3000.0, 25000.0)
+MAX_PIXELS = 6000
+PIXELS_PER_FWHM = 2.5
+
+# non-hydrogenic lines (vacuum Å, NIST ASD, recalled) and their flux relative to H-beta or
+# Ly-alpha (ranges of this benchmark's invention, typical of star-forming galaxies and AGN)
+OTHER_LINES_VAC = {
+    "N V 1239": (1238.82, "uv", (0.02, 0.3)), "N V 1243": (1242.80, "uv", (0.01, 0.15)),
+    "Si IV 1394": (1393.76, "uv", (0.02, 0.2)), "C IV 1548": (1548.19, "uv", (0.05, 0.5)),
+    "C IV 1551": (1550.77, "uv", (0.03, 0.3)), "C III] 1909": (1908.73, "uv", (0.03, 0.3)),
+    "Mg II 2796": (2796.35, "uv", (0.02, 0.2)), "Mg II 2804": (2803.53, "uv", (0.01, 0.1)),
+    "[O II] 3727": (3727.09, "opt", (0.3, 2.0)), "[O II] 3730": (3729.88, "opt", (0.3, 2.5)),
+    "[Ne III] 3870": (3870.16, "opt", (0.05, 0.6)), "[O III] 4960": (4960.30, "opt", (0.2, 2.0)),
+    "[O III] 5008": (5008.24, "opt", (0.6, 6.0)), "He I 5877": (5877.25, "opt", (0.05, 0.15)),
+    "[N II] 6550": (6549.86, "opt", (0.05, 0.5)), "[N II] 6585": (6585.27, "opt", (0.15, 1.5)),
+    "[S II] 6718": (6718.29, "opt", (0.1, 0.6)), "[S II] 6733": (6732.67, "opt", (0.08, 0.5)),
+    "[S III] 9071": (9071.1, "opt", (0.05, 0.3)), "[S III] 9533": (9533.2, "opt", (0.1, 0.8)),
+}
+# Lyman-series emission relative to Ly-alpha (invented, an IGM-attenuated emitter)
+_LYMAN_EMISSION = {2: 1.0, 3: 0.08, 4: 0.03, 5: 0.015}
+_H_LOWER = (1, 2, 3, 4)
+
+
+def random_parameters(rng):
+    """z (uniform 0-7), peak S/N (log-uniform 3-100), R (log-uniform 500-50 000), kind."""
+    return {"z": float(rng.uniform(0.0, 7.0)),
+            "snr": float(np.exp(rng.uniform(np.log(3.0), np.log(100.0)))),
+            "resolution": float(np.exp(rng.uniform(np.log(500.0), np.log(50000.0)))),
+            "kind": "emission" if rng.uniform() < 0.7 else "absorption"}
+
+
+def _hydrogen_lines(z):
+    cat = build_catalogue("H", (1, 4), (2, 30), z=z, wavelength_range=(WINDOW_AA[0] * u.AA,
+                                                                        WINDOW_AA[1] * u.AA))
+    return cat
+
+
+def _emission_strength(nl, nu, rel):
+    """Relative flux of an H I line: Case B where tabulated, else extended smoothly."""
+    if nl == 1:
+        return 30.0 * _LYMAN_EMISSION.get(nu, 0.0)   # Ly-alpha ~ 30 H-beta (Case B ~ 33)
+    if (nl, nu) in CASE_B_HBETA:
+        return CASE_B_HBETA[(nl, nu)]
+    last = max((k for k in CASE_B_HBETA if k[0] == nl), key=lambda k: k[1])
+    return CASE_B_HBETA[last] * rel[(nl, nu)] / rel[last]
+
+
+def _grid(rng, lam_center, R):
+    span = min(np.log(2.8), MAX_PIXELS / (PIXELS_PER_FWHM * R))
+    lo = np.log(lam_center) - rng.uniform(0.1, 0.9) * span
+    lo = np.clip(lo, np.log(WINDOW_AA[0]), np.log(WINDOW_AA[1]) - span)
+    dlog = 1.0 / (PIXELS_PER_FWHM * R)
+    n = int(span / dlog)
+    return np.exp(lo + dlog * np.arange(n)), dlog
+
+
+def _gauss(x, c, s):
+    return np.exp(-0.5 * ((x - c) / s) ** 2)
+
+
+def _add_contaminants(rng, lam, flux, dlog, truth, sigma):
+    """Night-sky residuals (fixed observed wavelengths) and cosmic-ray spikes."""
+    for name, air in SKY_LINES_AIR.items():
+        vac = float(air_to_vacuum(air * u.AA).to_value(u.AA))
+        if lam[0] < vac < lam[-1] and rng.uniform() < 0.6:
+            amp = rng.choice([-1.0, 1.0]) * rng.uniform(4, 15) * sigma
+            s_px = PIXELS_PER_FWHM / 2.3548
+            flux += amp * _gauss(np.log(lam), np.log(vac), s_px * dlog)
+            truth["sky"].append({"name": name, "observed": vac, "amplitude": float(amp)})
+    for _ in range(int(rng.integers(0, 4))):
+        k = int(rng.integers(5, len(lam) - 5))
+        flux[k] += rng.uniform(10, 50) * sigma
+        truth["spikes"].append(float(lam[k]))
+
+
+def make_spectrum(rng, *, z, snr, resolution, kind="emission", velocity_fwhm_kms=None,
+                  contaminants=True, other_lines=True):
+    """One synthetic spectrum and its truth (see the module docstring)."""
+    R = float(resolution)
+    cat = _hydrogen_lines(z)
+    if kind == "absorption":
+        # an absorption system: the Lyman series where it is in the window, else Balmer lines
+        # (a star or a post-starburst galaxy)
+        nl_all = np.asarray(cat["n_lower"])
+        cat = cat[nl_all == (1 if np.any(nl_all == 1) else 2)]
+    anchor = cat[int(rng.integers(len(cat)))]
+    lam, dlog = _grid(rng, anchor["wavelength_vacuum"].to_value(u.AA), R)
+    x = np.log(lam)
+    sigma = 1.0
+    vfwhm = velocity_fwhm_kms if velocity_fwhm_kms is not None else float(rng.uniform(0, 250))
+    fwhm_ln = np.hypot(1.0 / R, vfwhm / C_KMS)
+    s_ln = fwhm_ln / 2.3548200450309493
+    s_px = s_ln / dlog
+    inside = [r for r in cat if lam[0] < r["wavelength_vacuum"].to_value(u.AA) < lam[-1]]
+    truth = {"z": float(z), "kind": kind, "resolution": R, "snr_peak": float(snr), "lines": [],
+             "other": [], "sky": [], "spikes": [], "velocity_fwhm_kms": vfwhm,
+             "n_pixels": len(lam)}
+    rest = build_catalogue("H", (1, 4), (2, 30))
+    rel = {(int(a), int(b)): float(c) for a, b, c in zip(rest["n_lower"], rest["n_upper"],
+                                                          rest["rel_intensity"])}
+    if kind == "emission":
+        cont = 5.0 * (lam / lam[0]) ** rng.uniform(-1.5, 0.5)
+        strengths = [_emission_strength(int(r["n_lower"]), int(r["n_upper"]), rel)
+                     for r in inside]
+    else:
+        cont = np.full(len(lam), 20.0)
+        # saturated-ish absorption: depths fall slowly up the series (invented)
+        strengths = [0.97 ** (int(r["n_upper"]) - int(r["n_lower"])) for r in inside]
+    strengths = np.asarray(strengths, dtype=float)
+    others = []
+    if other_lines and kind == "emission":
+        lyman = anchor["n_lower"] == 1
+        for name, (rest_aa, band, (lo_f, hi_f)) in OTHER_LINES_VAC.items():
+            obs = rest_aa * (1 + z)
+            if not (lam[0] < obs < lam[-1]) or rng.uniform() < 0.3:
+                continue
+            # optical lines scale with H-beta (1), UV lines with Ly-alpha (30) in emitters
+            base = 30.0 if (band == "uv" and lyman) else 1.0
+            others.append((name, obs, base * np.exp(rng.uniform(np.log(lo_f), np.log(hi_f)))))
+    flux = cont.copy()
+    norm = np.sqrt(np.sqrt(np.pi) * s_px)
+    top = max([*strengths, *(o[2] for o in others), 0.0]) or 1.0
+    amp_unit = snr * sigma / norm / top    # the strongest line in the window gets the S/N asked
+    sign = 1.0 if kind == "emission" else -1.0
+    for r, st in zip(inside, strengths):
+        a = amp_unit * st
+        if a <= 0:
+            continue
+        c = np.log(r["wavelength_vacuum"].to_value(u.AA))
+        flux += sign * a * _gauss(x, c, s_ln)
+        truth["lines"].append({"label": str(r["label"]), "species": "H I",
+                               "n_lower": int(r["n_lower"]), "n_upper": int(r["n_upper"]),
+                               "observed": float(np.exp(c)), "snr": float(a / sigma * norm),
+                               "crb": float(dlog * sigma / a * np.sqrt(2 * s_px / np.sqrt(np.pi))),
+                               "kind": kind})
+    for name, obs, st in others:
+        a = amp_unit * st
+        flux += a * _gauss(x, np.log(obs), s_ln)
+        truth["other"].append({"name": name, "observed": obs, "snr": float(a / sigma * norm)})
+    if contaminants:
+        _add_contaminants(rng, lam, flux, dlog, truth, sigma)
+    flux = flux + rng.normal(0.0, sigma, len(lam))
+    spec = SpectrumData(axis=lam * u.AA, flux=flux * u.dimensionless_unscaled,
+                        uncertainty=np.full(len(lam), sigma) * u.dimensionless_unscaled,
+                        meta={"source": "synthetic", "medium": "vacuum", "medium_source": "synthetic",
+                              "resolution": R})
+    return spec, truth
+
+
+def make_noise_spectrum(rng, *, resolution, contaminants=True):
+    """Pure noise on a flat continuum (with sky residuals and spikes if asked)."""
+    R = float(resolution)
+    lam, dlog = _grid(rng, float(np.exp(rng.uniform(np.log(3500.0), np.log(20000.0)))), R)
+    flux = np.full(len(lam), 5.0)
+    truth = {"z": None, "kind": "noise", "resolution": R, "lines": [], "other": [], "sky": [],
+             "spikes": [], "n_pixels": len(lam)}
+    if contaminants:
+        _add_contaminants(rng, lam, flux, dlog, truth, 1.0)
+    flux = flux + rng.normal(0.0, 1.0, len(lam))
+    spec = SpectrumData(axis=lam * u.AA, flux=flux * u.dimensionless_unscaled,
+                        uncertainty=np.ones(len(lam)) * u.dimensionless_unscaled,
+                        meta={"source": "synthetic-noise", "medium": "vacuum",
+                              "medium_source": "synthetic", "resolution": R})
+    return spec, truth
