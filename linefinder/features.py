@@ -336,7 +336,10 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
     n = len(y)
     w = np.where(good & np.isfinite(sig) & (sig > 0), 1.0 / np.where(sig > 0, sig, 1) ** 2, 0.0)
     base_knots = knot_px or max(40, 12 * fwhm_px)
-    cont, _ = fit_continuum(y, sig, good, knot_px=min(base_knots, max(n // 3, 8)))
+    # first guess with wide knots, so that lines broader than the resolution element (galaxy
+    # velocity widths at high R) are not absorbed before they are seen
+    first_knots = max(base_knots, min(n / 10, 400))
+    cont, _ = fit_continuum(y, sig, good, knot_px=min(first_knots, max(n // 3, 8)))
     feats = []
     # continuum and features refine each other: wide features push the knots apart
     for _ in range(2):

@@ -77,19 +77,30 @@ def _n_ranges(reg, lam_rest_min, lam_rest_max):
     return (1, 6), (2, 40)
 
 
-def _strengths(cat):
-    """Expected strength of each line within its species and series (0..1)."""
+def _strengths(cat, kind="emission"):
+    """Expected strength of each line within its species and series (0..1).
+
+    Emission: Case B ratios for H I and D I (extended beyond the table), the
+    catalogue's optically thin intensities otherwise.  Absorption: optical
+    depth goes as f lambda, and the lines people see are mostly saturated, so
+    the strength is (f lambda / max)^(1/3): a flat curve of growth, a rule of
+    thumb of this tool.
+    """
+    if kind == "absorption":
+        return _absorption_strengths(cat)
     strength = np.zeros(len(cat))
     key = [f"{a}|{b}" for a, b in zip(cat["species"], cat["series"])]
     base = np.asarray(cat["rel_intensity"], dtype=float)
+    # optically thin g_u A h nu (absolute, so that series can be joined to the Case B table)
+    thin = np.asarray(cat["g_upper"] * cat["a_ul"].to_value(u.s ** -1)
+                      / cat["rest_wavelength_vacuum"].to_value(u.m), dtype=float)
     for k in set(key):
         sel = np.array([kk == k for kk in key])
         vals = base[sel].copy()
         if k.startswith("H I|") or k.startswith("D I|"):
             nl = np.asarray(cat["n_lower"][sel])
             nu = np.asarray(cat["n_upper"][sel])
-            case_b = np.array([CASE_B_HBETA.get((a, b), np.nan) for a, b in zip(nl, nu)])
-            vals = np.where(np.isfinite(case_b), case_b, vals * 0.05)
+            vals = _case_b_extended(nl, nu, thin[sel])
         m = np.nanmax(vals) if len(vals) else 1.0
         strength[sel] = vals / m if m > 0 else 0.0
     # across species: hydrogen dominates; helium, carbon and isotopes are usually far weaker
@@ -98,6 +109,40 @@ def _strengths(cat):
     primary = "H I" if "H I" in set(species) else (species[0] if len(species) else "")
     strength = np.where(species == primary, strength, 0.25 * strength)
     return strength, np.array(key)
+
+
+def _absorption_strengths(cat):
+    key = np.array([f"{a}|{b}" for a, b in zip(cat["species"], cat["series"])])
+    tau = np.asarray(cat["f_lu"], dtype=float) * cat["rest_wavelength_vacuum"].to_value(u.m)
+    strength = np.zeros(len(cat))
+    for k in np.unique(key):
+        sel = key == k
+        m = tau[sel].max()
+        strength[sel] = (tau[sel] / m) ** (1 / 3) if m > 0 else 0.0
+    species = np.asarray(cat["species"]).astype(str)
+    primary = "H I" if "H I" in set(species) else (species[0] if len(species) else "")
+    return np.where(species == primary, strength, 0.25 * strength), key
+
+
+def _case_b_extended(nl, nu, thin):
+    """Case B ratios where tabulated; beyond the table each series follows the catalogue's
+    optically thin intensities, scaled to meet the last tabulated line (continuity, not a
+    recombination calculation)."""
+    out = np.array([CASE_B_HBETA.get((a, b), np.nan) for a, b in zip(nl, nu)])
+    for lower in np.unique(nl):
+        tab = [k for k in CASE_B_HBETA if k[0] == lower]
+        sel = (nl == lower) & ~np.isfinite(out)
+        if not np.any(sel):
+            continue
+        if not tab:
+            out[sel] = thin[sel] / np.max(thin[nl == lower])
+            continue
+        last = max(tab, key=lambda k: k[1])
+        ref = build_catalogue("H", lower, last[1])
+        ref = float(ref["g_upper"][0] * ref["a_ul"][0].to_value(u.s ** -1)
+                    / ref["rest_wavelength_vacuum"][0].to_value(u.m))
+        out[sel] = CASE_B_HBETA[last] * thin[sel] / ref
+    return out
 
 
 def read_line_list(path):
@@ -202,9 +247,18 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     if series:
         wanted = {s.lower() for s in series}
         cat = cat[[str(s).lower() in wanted for s in cat["series"]]]
-    strength, group = _strengths(cat) if len(cat) else (np.zeros(0), np.zeros(0, dtype=str))
+    snr_kind = np.nan_to_num(np.asarray(feats["snr"], dtype=float)) if len(feats) else np.zeros(0)
+    kinds_arr = np.asarray(feats["kind"]).astype(str) if len(feats) else np.zeros(0, str)
+    main_kind = "absorption" if snr_kind[kinds_arr == "absorption"].sum() > \
+        snr_kind[kinds_arr == "emission"].sum() else "emission"
+    strength, group = _strengths(cat, main_kind) if len(cat) else (np.zeros(0),
+                                                                    np.zeros(0, dtype=str))
     keep = strength >= 1e-3
     cat, strength, group = cat[keep], strength[keep], group[keep]
+    group_codes = np.unique(group, return_inverse=True)[1] if len(group) else np.zeros(0, int)
+    cat_species = np.asarray(cat["species"]).astype(str)
+    primary = "H I" if "H I" in set(cat_species) else (cat_species[0] if len(cat) else "")
+    line_weight = np.where(cat_species == primary, 1.0, 0.5)
     x = np.log(cat["wavelength_vacuum"].to_value(u.m)) if len(cat) else np.zeros(0)
     y = np.log(lam) if len(lam) else np.zeros(0)
     snr_arr = np.asarray(feats["snr"], dtype=float) if len(feats) else np.zeros(0)
@@ -212,13 +266,21 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     use = ~(sky if mask_sky else np.zeros(len(feats), bool))
     s_lo, s_hi = np.log1p(zmin), np.log1p(zmax)
     anchors = np.flatnonzero(strength >= 0.02)
+    window = _observed_window(feature_result, y)
+    flux_abs = np.abs(np.asarray(u.Quantity(feats["flux"]).value, dtype=float)) if len(feats) \
+        else np.zeros(0)
+    # measured fluxes should follow the expected strengths within a factor ~3 (emission) or
+    # ~10 (absorption, where saturation flattens them): rules of thumb of this tool
+    isig = np.log(3.0) if main_kind == "emission" else np.log(10.0)
     if z is None:
         sols = search_shift(y[use], sy[use], w[use], x, strength, smin=s_lo, smax=s_hi,
-                            anchors=anchors if len(anchors) else None)
+                            anchors=anchors if len(anchors) else None, window=window,
+                            flux=flux_abs[use], intensity_sigma=isig, fwhm_ln=1.0 / R,
+                            group=group_codes, line_weight=line_weight)
         sols = [_reindex(s, np.flatnonzero(use)) for s in sols]
     else:
         sol = refine(np.log1p(z), y[use], sy[use], w[use], x, strength, np.ones(len(x), bool),
-                     window=(y.min() - 0.01, y.max() + 0.01) if len(y) else None)
+                     window=window, fwhm_ln=1.0 / R, group=group_codes, line_weight=line_weight)
         sol = _reindex(sol, np.flatnonzero(use))
         sol.s = float(np.log1p(z))
         sols = [sol] if sol.n_lines else []
@@ -253,7 +315,8 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
         rest = np.flatnonzero(use & (np.asarray(out["label"]) == ""))
         if len(rest) >= 3:
             more = search_shift(y[rest], sy[rest], w[rest], x, strength, smin=s_lo, smax=s_hi,
-                                anchors=anchors if len(anchors) else None, n_solutions=2)
+                                anchors=anchors if len(anchors) else None, n_solutions=2,
+                                window=window)
             more = [_reindex(s, rest) for s in more]
             primary = sols[0]
             if more and classify(more) == "secure" and more[0].n_lines >= 4 and \
@@ -282,6 +345,20 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                    "z_fixed": z is not None, "sky_masked": bool(mask_sky),
                    "constants": cat.meta.get("constants"), "catalogue": dict(cat.meta)}
     return result
+
+
+def _observed_window(feature_result, y):
+    """ln(lambda) range searched for features: the spectrum's, else the features' span."""
+    if feature_result is not None:
+        spec = feature_result.spectrum
+        ax = spec.axis[~spec.mask]
+        lam = ax.to_value(u.m, equivalencies=u.spectral())
+        if spec.is_wavelength and spec.medium == "air":
+            lam = air_to_vacuum(lam * u.m).to_value(u.m)
+        return float(np.log(lam.min())), float(np.log(lam.max()))
+    if len(y):
+        return float(y.min() - 0.01), float(y.max() + 0.01)
+    return None
 
 
 def _reindex(sol, idx):

@@ -2,21 +2,33 @@
 
 Every feature position y_i = ln(lambda_i) (vacuum) and every catalogue rest
 position x_j = ln(lambda_j) vote for a shift s = y_i - x_j = ln(1 + z).  Each
-candidate shift in the allowed range is scored by how many features it
-explains (within `tol` combined sigma, weighted by the features' S/N and the
-lines' expected strength), minus a penalty for strong lines it predicts in
-the observed window that are not seen.  The best distinct solutions are
-refined by weighted least squares on their matched lines, giving z with its
-1-sigma error, chi^2 and the evidence against the others.
+candidate shift is scored by a log-likelihood ratio (natural log) of "the
+features are catalogue lines at shift s" against "the features fall at random
+in the observed window":
+
+    ln L_i = ln(1 + pi_j phi(y_i - s - x_j; sigma_i) / rho_0)
+
+for the nearest line j, with phi a normal density of the combined position
+error, rho_0 = 1 / (window width in ln lambda) the density of random
+features, and pi_j = f * strength_j / sum(strength in the window) the prior
+share of features that line j explains (f = 0.5).  Crowded stretches of the
+catalogue (series limits) thus carry less evidence per match than isolated
+strong lines.  The best single term is not counted (a shift fitted to one
+line always explains that line), and each strong line (expected strength >=
+0.2) that the shift puts inside the window but that no feature explains
+costs one unit.  The best distinct solutions are refined by weighted least
+squares on their matched lines, giving z with its 1-sigma error, chi^2 and
+the evidence against the others (difference of scores, in nats).
 
 Status:
-* ``secure``: at least 3 matched lines, acceptable chi^2, and a clear margin
-  over every alternative: a score difference >= max(3, 30 % of the best
-  score), or more matched lines than any alternative with a higher score;
-* ``tentative``: 2 or more matched lines but no clear margin, or only 2 lines;
-* ``none``: fewer than 2 matched lines.
-These are rules of thumb of this tool (common practice in spirit: a z
-resting on one line is no z).
+* ``secure``: at least 3 matched lines, acceptable chi^2, a score of at
+  least 8 and a margin over every alternative of at least max(5, 20 % of
+  the score), in nats;
+* ``tentative``: 2 or more matched lines with positive evidence, short of that;
+* ``none``: otherwise.
+The thresholds were set on this tool's synthetic suite (benchmarks/); they
+are rules of thumb of this tool (common practice in spirit: a z resting on
+one line is no z).
 """
 
 from dataclasses import dataclass, field
@@ -57,31 +69,60 @@ def _nearest(sorted_x, values):
     return pick
 
 
+LINE_FRACTION = 0.5
+SECURE_SCORE = 8.0     # nats of evidence beyond the first line
+SECURE_MARGIN = 5.0    # nats over the best alternative (a likelihood ratio of ~150)
+MISSING_COST = 1.0
+
+
+def _evidence(d, sy, strength_j, strength_in_window, width):
+    """ln(1 + pi phi / rho_0) per (trial, feature); d in sigmas, sy the sigmas (ln lambda)."""
+    pi = LINE_FRACTION * strength_j / np.maximum(strength_in_window, 1e-300)
+    phi = np.exp(-0.5 * d * d) / (np.sqrt(2 * np.pi) * sy)
+    return np.log1p(pi * phi * width)
+
+
+def _window_strength(xs, cum, s_values, window):
+    """Sum of expected strengths of the lines that shift s puts inside the window."""
+    hi = np.searchsorted(xs, window[1] - s_values, side="right")
+    lo = np.searchsorted(xs, window[0] - s_values, side="left")
+    return cum[hi] - cum[lo]
+
+
 def _score(s_values, y, sy, w, x, strength, kinds_ok, window, tol, missing_weight):
-    """Scores of many trial shifts at once (K trials x F features)."""
+    """Scores (log-likelihood ratios) of many trial shifts at once (K trials x F features)."""
     order = np.argsort(x)
     xs = x[order]
+    st = strength[order]
+    cum = np.concatenate([[0.0], np.cumsum(st)])
+    width = window[1] - window[0]
     target = y[None, :] - s_values[:, None]
     j = _nearest(xs, target)
     d = (target - xs[j]) / sy[None, :]
     ok = (np.abs(d) < tol) & kinds_ok[order][j]
-    gain = np.where(ok, w[None, :] * (1 - (d / tol) ** 2) * (0.2 + 0.8 * strength[order][j]), 0.0)
-    score = gain.sum(axis=1)
+    total = _window_strength(xs, cum, s_values, window)[:, None]
+    gain = np.where(ok, _evidence(d, sy[None, :], st[j], total, width), 0.0)
+    # the first line is free: any single feature matches some line at some shift
+    score = gain.sum(axis=1) - gain.max(axis=1)
     if missing_weight > 0:
-        strong = strength >= 0.2
+        strong = strength >= 0.3
         if np.any(strong):
             xo = x[strong][None, :] + s_values[:, None]
             inside = (xo > window[0]) & (xo < window[1])
             ys = np.sort(y)
             k = _nearest(ys, xo) if len(ys) > 1 else np.zeros(xo.shape, dtype=int)
             seen = np.abs(ys[k] - xo) < tol * np.median(sy)
-            score = score - missing_weight * np.sum(inside & ~seen, axis=1) * np.mean(w)
+            score = score - missing_weight * np.sum(inside & ~seen, axis=1)
     return score
 
 
 def search_shift(y, sy, w, x, strength, *, smin, smax, kinds_ok=None, tol=3.0, n_solutions=5,
-                 missing_weight=0.5, anchors=None):
-    """The best distinct shifts s = ln(1+z) in [smin, smax], best first."""
+                 anchors=None, window=None, flux=None,
+                 intensity_sigma=np.log(3.0), fwhm_ln=0.0, group=None, line_weight=None):
+    """The best distinct shifts s = ln(1+z) in [smin, smax], best first.
+
+    `window` is the observed range (ln lambda) where features could have been
+    found; default the span of the features."""
     if len(y) == 0 or len(x) == 0:
         return []
     if kinds_ok is None:
@@ -95,9 +136,10 @@ def search_shift(y, sy, w, x, strength, *, smin, smax, kinds_ok=None, tol=3.0, n
         return []
     step = 0.5 * float(np.median(sy))
     cand = np.unique(np.round(cand / step)) * step
-    window = (y.min() - 3 * sy.max(), y.max() + 3 * sy.max())
+    if window is None:
+        window = (y.min() - 3 * sy.max(), y.max() + 3 * sy.max())
     scores = np.concatenate([_score(cand[i:i + 2000], y, sy, w, x, strength, kinds_ok, window, tol,
-                                    missing_weight) for i in range(0, len(cand), 2000)])
+                                    0.0) for i in range(0, len(cand), 2000)])
     order = np.argsort(-scores)
     chosen = []
     sep = tol * float(np.median(sy))
@@ -106,9 +148,11 @@ def search_shift(y, sy, w, x, strength, *, smin, smax, kinds_ok=None, tol=3.0, n
             break
         if all(abs(cand[k] - c) > sep for c, _ in chosen):
             chosen.append((cand[k], scores[k]))
-        if len(chosen) >= n_solutions * 3:
+        if len(chosen) >= n_solutions * 4:
             break
-    sols = [refine(c, y, sy, w, x, strength, kinds_ok, tol=tol, window=window) for c, _ in chosen]
+    sols = [refine(c, y, sy, w, x, strength, kinds_ok, tol=tol, window=window, flux=flux,
+                   intensity_sigma=intensity_sigma, fwhm_ln=fwhm_ln, group=group,
+                   line_weight=line_weight) for c, _ in chosen]
     sols = [s for s in sols if s.n_lines > 0]
     # refinement can bring two trial shifts onto one solution: keep the better
     unique = []
@@ -118,8 +162,92 @@ def search_shift(y, sy, w, x, strength, *, smin, smax, kinds_ok=None, tol=3.0, n
     return unique[:n_solutions]
 
 
-def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterations=3):
-    """Weighted least squares on the lines matched at s0 (one line per feature and vice versa)."""
+MISSING_SNR = 3.0      # fitted S/N below which an absent line is no surprise
+
+
+def _missing_lines(s, y, sy, w, x, strength, fi, lj, used_l, window, tol, fwhm_ln=0.0,
+                   group=None):
+    """Lines the solution predicts above the detection limit that no feature explains.
+
+    The S/N expected of each catalogue line in the window is its strength times
+    the median S/N per unit strength of the matched lines of its group (species
+    and series; groups with fewer than two matched lines predict nothing); a line expected at
+    S/N p but absent costs MISSING_COST * min((p - 3) / 1.5, 4) nats (the
+    feature S/N is that of the profile fit, about half the matched-filter
+    detection S/N).  A line within one resolution element (`fwhm_ln`) of a
+    feature or of a matched line counts as seen (it would be blended), and a
+    line within two of another line of its series is not predicted at all.
+    Returns (indices, total cost).
+    """
+    if window is None or not len(fi):
+        return [], 0.0
+    snr = np.expm1(w[fi])
+    if group is None:
+        group = np.zeros(len(x), dtype=int)
+    per_unit = {}
+    for g in set(group[lj].tolist()):
+        ok = (group[lj] == g) & (strength[lj] > 0)
+        if ok.sum() >= 2:     # one matched line may be a chance coincidence: no scale
+            per_unit[g] = float(np.median(snr[ok] / strength[lj][ok]))
+    xo = x + s
+    inside = np.flatnonzero((xo > window[0]) & (xo < window[1]) & (strength > 0)
+                            & np.isin(group, list(per_unit)))
+    # lines crowded within two resolution elements of a neighbour of their own series
+    # (series limits) blend into a pseudo-continuum: their absence says nothing
+    if fwhm_ln > 0 and len(inside) > 1:
+        keep = np.ones(len(inside), dtype=bool)
+        for g in np.unique(group[inside]):
+            sel = np.flatnonzero(group[inside] == g)
+            order = sel[np.argsort(xo[inside][sel])]
+            xi = xo[inside][order]
+            gap = np.diff(xi)
+            near_gap = np.minimum(np.concatenate([[np.inf], gap]), np.concatenate([gap, [np.inf]]))
+            keep[order[near_gap < 2 * fwhm_ln]] = False
+        inside = inside[keep]
+    missing, cost = [], 0.0
+    tol_ln = max(tol * float(np.median(sy)), fwhm_ln)
+    ys = np.sort(y)
+    matched_x = np.sort(xo[lj])
+    for jj in inside:
+        pred = per_unit.get(group[jj], 0.0) * strength[jj]
+        if pred <= MISSING_SNR or jj in used_l:
+            continue
+        k = np.searchsorted(ys, xo[jj])
+        near = any(abs(ys[q] - xo[jj]) < tol_ln for q in (k - 1, k) if 0 <= q < len(ys))
+        m = np.searchsorted(matched_x, xo[jj])
+        near = near or any(abs(matched_x[q] - xo[jj]) < max(fwhm_ln, 1e-12)
+                           for q in (m - 1, m) if 0 <= q < len(matched_x))
+        if not near:
+            missing.append(int(jj))
+            cost += MISSING_COST * min((pred - MISSING_SNR) / 1.5, 4.0)
+    return missing, cost
+
+
+def _intensity_evidence(flux, strength, sigma, sigma_random=np.log(30.0)):
+    """Do the matched fluxes follow the expected strengths?  ln-likelihood ratio of
+    ln(flux / strength) scattering by `sigma` about a common scale, against
+    fluxes unrelated to strength (scatter `sigma_random`)."""
+    ok = np.isfinite(flux) & (flux > 0) & (strength > 0)
+    if ok.sum() < 2:
+        return 0.0
+    v = np.log(flux[ok] / strength[ok])
+    v0 = np.log(flux[ok])
+    dev = v - np.median(v)
+    dev0 = v0 - np.median(v0)
+    return float(np.sum(np.log(sigma_random / sigma) - 0.5 * (dev / sigma) ** 2
+                        + 0.5 * (dev0 / sigma_random) ** 2))
+
+
+def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterations=3, flux=None,
+           intensity_sigma=np.log(3.0), fwhm_ln=0.0, group=None, line_weight=None):
+    """Weighted least squares on the lines matched at s0 (one line per feature and vice versa).
+
+    With `flux`, the score adds `_intensity_evidence` of the matched lines
+    (beyond the first: one flux only sets the scale).  `line_weight` scales
+    the evidence each line can give (identify gives lines of species other than
+    the primary one half weight: a He II or D I pattern without H I support is
+    less believable, and He II n -> 2 lines repeat the Balmer series at four
+    times the wavelength)."""
     s = float(s0)
     sol = Solution(s=s, s_err=np.inf, score=0.0)
     for _ in range(iterations):
@@ -145,17 +273,22 @@ def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterati
         s_err = float(1 / np.sqrt(np.sum(wt)))
         resid = (y[fi] - s_new - x[lj]) / sy[fi]
         chi2 = float(np.sum(resid ** 2))
-        score = float(np.sum(w[fi] * (1 - np.clip(np.abs(resid) / tol, 0, 1) ** 2)
-                             * (0.2 + 0.8 * strength[lj])))
-        missing = []
         if window is not None:
-            strong = np.flatnonzero(strength >= 0.2)
-            xo = x[strong] + s_new
-            for jj, xx in zip(strong, xo):
-                if window[0] < xx < window[1] and jj not in used_l and \
-                        not np.any(np.abs(y - xx) < tol * sy):
-                    missing.append(int(jj))
-        score -= 0.5 * len(missing) * float(np.mean(w))
+            inside = (x + s_new > window[0]) & (x + s_new < window[1])
+            total = float(np.sum(strength[inside]))
+            width = window[1] - window[0]
+        else:
+            total, width = float(np.sum(strength)), float(np.ptp(y) + 1e-3)
+        gains = _evidence(resid, sy[fi], strength[lj], total, width)
+        if line_weight is not None:
+            gains = gains * line_weight[lj]
+        score = float(np.sum(gains) - np.max(gains))   # the first line is free
+        missing, cost = _missing_lines(s_new, y, sy, w, x, strength, fi, lj, used_l, window, tol,
+                                       fwhm_ln, group)
+        score -= cost
+        if flux is not None and len(fi) >= 2:
+            ie = _intensity_evidence(np.abs(flux[fi]), strength[lj], intensity_sigma)
+            score += ie - (np.log(np.log(30.0) / intensity_sigma) if ie else 0.0)
         if len(pairs) > 1:
             s_err *= max(1.0, np.sqrt(chi2 / (len(pairs) - 1)))
         sol = Solution(s=s_new, s_err=s_err, score=score,
@@ -175,11 +308,10 @@ def classify(solutions):
     dof = max(best.n_lines - 1, 1)
     good_fit = best.chi2 / dof < 6.0
     margin = min((best.score - s.score for s in solutions[1:]), default=np.inf)
-    more_lines = all(best.n_lines >= s.n_lines + 1 for s in solutions[1:])
-    clear = margin >= max(3.0, 0.3 * best.score) or (more_lines and margin > 0)
-    if best.n_lines >= 3 and good_fit and clear:
+    clear = margin >= max(SECURE_MARGIN, 0.2 * best.score)
+    if best.n_lines >= 3 and good_fit and clear and best.score >= SECURE_SCORE:
         status = "secure"
-    elif best.n_lines >= 2:
+    elif best.n_lines >= 2 and best.score > 0:
         status = "tentative"
     else:
         status = "none"

@@ -113,7 +113,11 @@ def make_spectrum(rng, *, z, snr, resolution, kind="emission", velocity_fwhm_kms
         # (a star or a post-starburst galaxy)
         nl_all = np.asarray(cat["n_lower"])
         cat = cat[nl_all == (1 if np.any(nl_all == 1) else 2)]
-    anchor = cat[int(rng.integers(len(cat)))]
+    # observers point where lines are: the window is centred near a line chosen with a
+    # preference for the strong ones (Ly-alpha, H-alpha, H-beta, Pa-alpha ...)
+    rank = np.asarray(cat["n_upper"]) - np.asarray(cat["n_lower"])
+    pref = 1.0 / rank ** 1.5
+    anchor = cat[int(rng.choice(len(cat), p=pref / pref.sum()))]
     lam, dlog = _grid(rng, anchor["wavelength_vacuum"].to_value(u.AA), R)
     x = np.log(lam)
     sigma = 1.0
