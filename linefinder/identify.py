@@ -94,13 +94,18 @@ def _strengths(cat, kind="emission"):
     # optically thin g_u A h nu (absolute, so that series can be joined to the Case B table)
     thin = np.asarray(cat["g_upper"] * cat["a_ul"].to_value(u.s ** -1)
                       / cat["rest_wavelength_vacuum"].to_value(u.m), dtype=float)
+    # share of each row (a component or a blend of them) in its n -> n' multiplet
+    mult = np.array([f"{a}|{b}|{c}" for a, b, c in zip(cat["species"], cat["n_lower"],
+                                                         cat["n_upper"])])
+    _, inv = np.unique(mult, return_inverse=True)
+    share = thin / np.bincount(inv, weights=thin)[inv]
     for k in set(key):
         sel = np.array([kk == k for kk in key])
         vals = base[sel].copy()
         if k.startswith("H I|") or k.startswith("D I|"):
             nl = np.asarray(cat["n_lower"][sel])
             nu = np.asarray(cat["n_upper"][sel])
-            vals = _case_b_extended(nl, nu, thin[sel])
+            vals = _case_b_extended(nl, nu, thin[sel] / share[sel]) * share[sel]
         m = np.nanmax(vals) if len(vals) else 1.0
         strength[sel] = vals / m if m > 0 else 0.0
     # across species: hydrogen dominates; helium, carbon and isotopes are usually far weaker
@@ -242,7 +247,9 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     else:
         lam_rest_min, lam_rest_max = 1e-10, 1e-5
     lower, upper = _n_ranges(reg, lam_rest_min, lam_rest_max)
-    cat = build_catalogue(names, lower, upper,
+    # fine-structure components merged at the resolution: resolved doublets (X-ray
+    # Lyman-alpha of heavy ions, H I at very high R) keep their own positions
+    cat = build_catalogue(names, lower, upper, fine=True, resolution=R,
                           wavelength_range=(lam_rest_min * u.m, lam_rest_max * u.m))
     if series:
         wanted = {s.lower() for s in series}
@@ -291,7 +298,8 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     # weak hydrogenic line cannot take a feature that the user's list explains better
     x_user = np.log([line["rest_vacuum_m"] for line in extra_lines]) if extra_lines else np.zeros(0)
     x_all = np.concatenate([x, x_user])
-    strength_all = np.concatenate([strength, np.ones(len(x_user))])
+    strength_all = np.concatenate([_defer_to_primary(x, strength, line_weight < 1, 1.0 / R),
+                                   np.ones(len(x_user))])
     group_all = np.concatenate([np.asarray(group, dtype=str),
                                 np.array([f"user|{k}" for k in range(len(x_user))], dtype=str)])
     s_user = best_s if best_s is not None else 0.0
@@ -312,15 +320,18 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
         _fill(out, idx, res, cat, y, s_user, extra_lines)
     systems = []
     if find_systems and z is None and status == "secure":
-        rest = np.flatnonzero(use & (np.asarray(out["label"]) == ""))
+        rest = np.flatnonzero(use & (np.asarray(out["label"]) == "")
+                              & (np.asarray(out["user_line"]) == ""))
         if len(rest) >= 3:
             more = search_shift(y[rest], sy[rest], w[rest], x, strength, smin=s_lo, smax=s_hi,
-                                anchors=anchors if len(anchors) else None, n_solutions=2,
-                                window=window)
+                                anchors=anchors if len(anchors) else None, n_solutions=3,
+                                window=window, flux=flux_abs[rest], intensity_sigma=isig,
+                                fwhm_ln=1.0 / R, group=group_codes, line_weight=line_weight)
             more = [_reindex(s, rest) for s in more]
-            primary = sols[0]
+            # a second system must stand on its own: secure by the same rules, 4 lines or more,
+            # and not the first one again
             if more and classify(more) == "secure" and more[0].n_lines >= 4 and \
-                    more[0].score >= 0.5 * primary.score:
+                    abs(more[0].s - sols[0].s) > 10 * max(sols[0].s_err, 1e-6):
                 systems.append(more[0])
                 res2 = assign(y[rest], sy[rest], np.ones(len(rest)), np.zeros(len(rest), bool), x,
                               strength, group, more[0].s)
@@ -345,6 +356,23 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                    "z_fixed": z is not None, "sky_masked": bool(mask_sky),
                    "constants": cat.meta.get("constants"), "catalogue": dict(cat.meta)}
     return result
+
+
+def _defer_to_primary(x, strength, secondary, fwhm_ln, factor=0.1):
+    """Strengths for the assignment: a secondary-species line that falls within one
+    resolution element of a primary-species line (He II Pickering lines on the Balmer
+    lines, D I beside H I at low R) gets `factor` of its strength, so the primary
+    line explains the feature unless the position clearly says otherwise."""
+    out = np.array(strength, dtype=float)
+    prim = np.sort(x[~secondary])
+    if not len(prim) or not np.any(secondary):
+        return out
+    xs = x[secondary]
+    k = np.clip(np.searchsorted(prim, xs), 1, max(len(prim) - 1, 1))
+    dist = np.minimum(np.abs(prim[k - 1] - xs), np.abs(prim[np.minimum(k, len(prim) - 1)] - xs))
+    idx = np.flatnonzero(secondary)
+    out[idx[dist < fwhm_ln]] *= factor
+    return out
 
 
 def _observed_window(feature_result, y):

@@ -22,8 +22,10 @@ the evidence against the others (difference of scores, in nats).
 
 Status:
 * ``secure``: at least 3 matched lines, acceptable chi^2, a score of at
-  least 8 and a margin over every alternative of at least max(5, 20 % of
-  the score), in nats;
+  least 8 and a margin over every competing alternative of at least max(5,
+  20 % of the score), in nats (an alternative competes when it explains at
+  least 30 % of the same features; one built on other features may be a
+  second system);
 * ``tentative``: 2 or more matched lines with positive evidence, short of that;
 * ``none``: otherwise.
 The thresholds were set on this tool's synthetic suite (benchmarks/); they
@@ -307,7 +309,15 @@ def classify(solutions):
     best = solutions[0]
     dof = max(best.n_lines - 1, 1)
     good_fit = best.chi2 / dof < 6.0
-    margin = min((best.score - s.score for s in solutions[1:]), default=np.inf)
+    # competitors explain (partly) the same features; a solution built on other features
+    # is a candidate second system, not evidence against this one
+    mine = {m[0] for m in best.matches}
+
+    def competes(s):
+        theirs = {m[0] for m in s.matches}
+        return len(mine & theirs) >= 0.3 * max(min(len(mine), len(theirs)), 1)
+
+    margin = min((best.score - s.score for s in solutions[1:] if competes(s)), default=np.inf)
     clear = margin >= max(SECURE_MARGIN, 0.2 * best.score)
     if best.n_lines >= 3 and good_fit and clear and best.score >= SECURE_SCORE:
         status = "secure"

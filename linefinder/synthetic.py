@@ -166,7 +166,7 @@ def make_spectrum(rng, *, z, snr, resolution, kind="emission", velocity_fwhm_kms
                                "n_lower": int(r["n_lower"]), "n_upper": int(r["n_upper"]),
                                "observed": float(np.exp(c)), "snr": float(a / sigma * norm),
                                "crb": float(dlog * sigma / a * np.sqrt(2 * s_px / np.sqrt(np.pi))),
-                               "kind": kind})
+                               "fwhm_ln": float(fwhm_ln), "kind": kind})
     for name, obs, st in others:
         a = amp_unit * st
         flux += a * _gauss(x, np.log(obs), s_ln)

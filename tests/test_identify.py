@@ -1,0 +1,102 @@
+"""identify() on synthetic spectra with known answers and on the bundled samples."""
+
+import json
+
+import numpy as np
+import pytest
+from astropy import units as u
+
+from linefinder.catalogue import build_catalogue
+from linefinder.identify import identify, read_line_list
+from linefinder.readers import read_input
+from linefinder.samples import sample_path
+from linefinder.spectrum import SpectrumData
+from linefinder.synthetic import make_spectrum
+
+
+def _correct(z, z0):
+    return z is not None and abs(z - z0) < 5e-4 * (1 + z0)
+
+
+@pytest.mark.parametrize("z, R, kind, seed", [
+    (0.2512, 3000.0, "emission", 4),     # Balmer + [O III], [N II] ... emitter
+    (3.4846, 1410.0, "absorption", 60),  # Lyman series absorber: not the Balmer alias at z/4
+    (0.0911, 720.0, "absorption", 102),  # Balmer absorption: not the He II alias at 4(1+z)-1
+])
+def test_synthetic_redshift_recovered(z, R, kind, seed):
+    rng = np.random.default_rng(seed)
+    spec, truth = make_spectrum(rng, z=z, snr=60.0, resolution=R, kind=kind,
+                                velocity_fwhm_kms=60.0)
+    # the window holds several clear lines: the test is about finding them, not luck
+    obs = np.array([l["observed"] for l in truth["lines"]])
+    resolved = [l for l in truth["lines"] if l["snr"] > 10 and np.sort(
+        np.abs(np.log(obs / l["observed"])))[1] > 1.5 * l["fwhm_ln"]]
+    assert len(resolved) >= 3
+    res = identify(spec)
+    assert _correct(res.z, z)
+    assert res.status == "secure"
+    labels = {str(x) for x in res.features["label"]}
+    strong = {l["label"] for l in resolved}
+    assert len(strong & labels) >= 0.8 * len(strong)
+
+
+def test_fixed_redshift_labels_lines(rng):
+    spec, truth = make_spectrum(rng, z=0.6, snr=30.0, resolution=2500.0, kind="emission",
+                                velocity_fwhm_kms=50.0)
+    res = identify(spec, z=0.6)
+    assert res.z == pytest.approx(0.6) and res.meta["z_fixed"]
+    found = {str(x) for x in res.features["label"] if x}
+    assert found, "no line labelled at the fixed redshift"
+    true_labels = {l["label"] for l in truth["lines"]}
+    assert found <= true_labels | {""} or len(found & true_labels) >= len(found) - 1
+
+
+def test_two_systems_in_one_spectrum(rng):
+    # two Balmer emitters in one slit (invented): z = 0.12 and z = 0.31
+    R = 4000.0
+    dlog = 1 / (2.5 * R)
+    lam = 3800.0 * np.exp(dlog * np.arange(int(np.log(9500 / 3800) / dlog)))
+    flux = np.full(len(lam), 2.0)
+    for z, amp in ((0.12, 60.0), (0.31, 35.0)):
+        cat = build_catalogue("H", 2, (3, 9), z=z)
+        case_b = {3: 2.86, 4: 1.0, 5: 0.47, 6: 0.26, 7: 0.16, 8: 0.105, 9: 0.073}
+        for row in cat:
+            c = row["wavelength_vacuum"].to_value(u.AA)
+            s = c / R / 2.3548
+            flux += amp * case_b[int(row["n_upper"])] * np.exp(-0.5 * ((lam - c) / s) ** 2)
+    flux += rng.normal(0, 1.0, len(lam))
+    spec = SpectrumData(lam * u.AA, flux * u.adu, np.ones(len(lam)) * u.adu,
+                        meta={"source": "two systems", "medium": "vacuum", "resolution": R})
+    res = identify(spec)
+    zs = sorted([res.z] + [s.z for s in res.systems])
+    assert len(zs) == 2
+    assert _correct(zs[0], 0.12) and _correct(zs[1], 0.31)
+    assert set(res.features["system"]) >= {1, 2}
+
+
+def test_xray_sample_keV_axis():
+    spec = read_input(sample_path("xray_cluster.fits"))
+    truth = json.loads(sample_path("xray_cluster.fits.truth.json").read_text())
+    res = identify(spec)
+    assert res.meta["regime"] == "xray"
+    assert _correct(res.z, truth["meta"]["z"] if "meta" in truth else truth["z"])
+    assert any("Fe XXVI" in s for s in res.features["species"])
+
+
+def test_user_lines_take_their_features():
+    spec = read_input(sample_path("emission_galaxy.fits"))
+    extra = read_line_list(sample_path("nebular_lines.csv"))
+    res = identify(spec, extra_lines=extra, mask_sky=True)
+    user = {str(x) for x in res.features["user_line"] if x}
+    assert {"[O III] 5008", "[N II] 6585", "[O II] 3727"} <= user
+    # a feature given to a user line carries no hydrogenic label
+    both = [(a, b) for a, b in zip(res.features["label"], res.features["user_line"]) if a and b]
+    assert not both
+
+
+def test_featureless_identify_status_none(rng):
+    lam = np.linspace(5000, 6000, 3000)
+    spec = SpectrumData(lam * u.AA, (1 + rng.normal(0, 0.01, len(lam))) * u.adu,
+                        np.full(len(lam), 0.01) * u.adu, meta={"source": "flat"})
+    res = identify(spec)
+    assert res.status == "none" and res.z is None

@@ -1,0 +1,80 @@
+"""Global assignment and redshift search: exactness of the sparse assignment, aliases."""
+
+import numpy as np
+import pytest
+from hypothesis import given, settings, strategies as st
+from scipy.optimize import linear_sum_assignment
+
+from linefinder.matching import NULL_LOG_LIKELIHOOD, TOL, assign
+from linefinder.redshift import classify, search_shift
+
+
+def _dense_optimum(y, sy, x, strength, s):
+    """Brute-force reference: the full (features x lines + none) assignment problem."""
+    d = (y[:, None] - s - x[None, :]) / sy[:, None]
+    ll = np.where(np.abs(d) < TOL, -0.5 * d ** 2 + np.log(np.clip(strength, 1e-4, 1))[None, :],
+                  -np.inf)
+    nf, nl = ll.shape
+    cost = np.hstack([np.where(np.isfinite(ll), -ll, 1e6), np.full((nf, nf), 1e6)])
+    cost[np.arange(nf), nl + np.arange(nf)] = -NULL_LOG_LIKELIHOOD
+    r, c = linear_sum_assignment(cost)
+    return cost[r, c].sum()
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.integers(0, 2 ** 32 - 1), st.integers(1, 25), st.integers(1, 40))
+def test_sparse_assignment_is_optimal(seed, nf, nl):
+    # the sort/search assignment reaches the same total likelihood as the dense problem
+    rng = np.random.default_rng(seed)
+    x = np.sort(rng.uniform(0, 0.02, nl))
+    y = rng.uniform(0, 0.02, nf)
+    y[: nf // 2] = x[rng.integers(0, nl, nf // 2)] + rng.normal(0, 1e-4, nf // 2)
+    sy = np.full(nf, 2e-4)
+    strength = rng.uniform(0.05, 1, nl)
+    # unknown fluxes switch the intensity prior off, so the optimum is the dense one's
+    res = assign(y, sy, np.full(nf, np.nan), np.zeros(nf, bool), x, strength, np.zeros(nl, int), 0.0)
+    d = (y - x[np.maximum(res.best, 0)]) / sy
+    chosen = np.where(res.best >= 0, 0.5 * d ** 2 - np.log(np.clip(strength[np.maximum(res.best, 0)],
+                                                                    1e-4, 1)), -NULL_LOG_LIKELIHOOD)
+    assert chosen.sum() == pytest.approx(_dense_optimum(y, sy, x, strength, 0.0), abs=1e-6)
+    used = res.best[res.best >= 0]
+    assert len(used) == len(set(used))          # a line explains at most one feature
+
+
+def test_assignment_scores_and_alternatives():
+    x = np.log([486.1e-9, 486.3e-9, 656.3e-9])
+    y = np.log([486.13e-9, 656.28e-9])
+    res = assign(y, np.full(2, 2e-4), np.ones(2), np.zeros(2, bool), x, np.ones(3),
+                 np.zeros(3, int), 0.0)
+    assert list(res.best) == [0, 2]
+    assert 0 < res.score[0] < 1 and res.alternatives(0)[0][0] == 1
+    assert res.alternatives(1) == []
+
+
+def _balmer_log_rest(nu):
+    # Rydberg formula with the hydrogen reduced mass (enough for a search test)
+    rinf = 10973731.568157
+    r_h = rinf / (1 + 1 / 1836.15267343)
+    return np.log(1.0 / (r_h * (0.25 - 1.0 / np.asarray(nu, float) ** 2)))
+
+
+def test_search_finds_balmer_redshift_and_is_secure():
+    x = _balmer_log_rest(np.arange(3, 12))
+    z = 0.3187
+    y = x[:6] + np.log1p(z)
+    sy = np.full(6, 3e-5)
+    w = np.full(6, np.log1p(20.0))
+    strength = np.array([1.0, 0.35, 0.16, 0.09, 0.055, 0.037, 0.026, 0.019, 0.014])
+    sols = search_shift(y, sy, w, x, strength, smin=0.0, smax=np.log(8.0),
+                        window=(y.min() - 0.05, y.max() + 0.05),
+                        flux=strength[:6] * 100, fwhm_ln=1 / 2000)
+    assert abs(sols[0].z - z) < 1e-6
+    assert classify(sols) == "secure"
+
+
+def test_one_line_is_no_redshift():
+    x = _balmer_log_rest(np.arange(3, 8))
+    y = np.array([np.log(6000e-10)])
+    sols = search_shift(y, np.array([3e-5]), np.array([3.0]), x, np.ones(len(x)), smin=0.0,
+                        smax=np.log(8.0))
+    assert classify(sols) in ("none", "tentative") and classify(sols) != "secure"
