@@ -41,14 +41,17 @@ def robust_noise(y, good, *, window=101):
 
 def _knots(good_idx, n, knot_px):
     inner = np.arange(knot_px, n - 1 - knot_px / 2, knot_px, dtype=float)
-    # keep only knots with good data between neighbours (Schoenberg-Whitney)
+    # keep only knots with good data between neighbours (Schoenberg-Whitney): at least 4
+    # good pixels strictly between consecutive kept knots (counted by binary search)
     keep = []
-    last = 0.0
-    for k in inner:
-        if np.count_nonzero((good_idx > last) & (good_idx < k)) >= 4:
+    below = np.searchsorted(good_idx, inner, side="left")      # good pixels < knot
+    upto = np.searchsorted(good_idx, inner, side="right")      # good pixels <= knot
+    after_last = int(np.searchsorted(good_idx, 0.0, side="right"))
+    for k, nb, nu in zip(inner.tolist(), below.tolist(), upto.tolist()):
+        if nb - after_last >= 4:
             keep.append(k)
-            last = k
-    while keep and np.count_nonzero(good_idx > keep[-1]) < 4:
+            after_last = nu
+    while keep and len(good_idx) - np.searchsorted(good_idx, keep[-1], side="right") < 4:
         keep.pop()
     t0, t1 = float(good_idx[0]), float(good_idx[-1])
     return np.concatenate([[t0] * 4, [k for k in keep if t0 < k < t1], [t1] * 4])
@@ -73,7 +76,8 @@ def fit_continuum(y, sigma, good, *, knot_px=60, clip=(3.0, 3.0), iterations=10,
             break
         t = _knots(idx, n, knot_px)
         try:
-            spl = make_lsq_spline(x[idx], y[idx], t, k=3, w=w[idx])
+            # banded normal equations: linear in the number of pixels
+            spl = make_lsq_spline(x[idx], y[idx], t, k=3, w=w[idx], method="norm-eq")
             new = spl(np.clip(x, t[0], t[-1]))
         except (ValueError, np.linalg.LinAlgError):
             new = np.full(n, np.median(y[idx]))

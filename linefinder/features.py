@@ -19,6 +19,7 @@ For each contiguous segment of a prepared spectrum:
    masked pixels and poor fits.
 """
 
+import bisect
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -89,13 +90,25 @@ def _candidates(r, w, fwhm_px, threshold, kinds, n):
                                   prominence=max(3.0, 0.6 * threshold), distance=max(1, f / 2))
             found.extend((int(p), f, abs(float(snr[p])), float(amp[p])) for p in peaks)
         found.sort(key=lambda c: -c[2])
+        # accepted candidates kept sorted by pixel: the neighbours of a new one are found by
+        # binary search within the widest possible reach (linear, not quadratic, in lines)
+        pos = sorted((d[0], id(d), d) for d in accepted)
+        widest = max((d[1] for d in accepted), default=0.0)
         for c in found:
-            near = [d for d in accepted if abs(c[0] - d[0]) < 0.75 * max(c[1], d[1])]
+            reach = 0.75 * max(c[1], widest)
+            lo = bisect.bisect_left(pos, (c[0] - reach, -1))
+            hi = bisect.bisect_right(pos, (c[0] + reach, float("inf")))
+            near = [e[2] for e in pos[lo:hi] if abs(c[0] - e[2][0]) < 0.75 * max(c[1], e[2][1])]
             if not near:
-                accepted.append(c)
+                bisect.insort(pos, (c[0], id(c), c))
+                widest = max(widest, c[1])
             elif all(np.sign(d[3]) == np.sign(c[3]) and d[1] < c[1] for d in near) and \
                     c[2] > 1.3 * max(d[2] for d in near):
-                accepted = [d for d in accepted if d not in near] + [c]
+                gone = {id(d) for d in near}
+                pos = [e for e in pos if e[1] not in gone]
+                bisect.insort(pos, (c[0], id(c), c))
+                widest = max(widest, c[1])
+        accepted = [e[2] for e in pos]
     accepted.sort(key=lambda c: -c[2])
     return accepted
 
@@ -157,9 +170,15 @@ def _fit_groups(groups, x, r, sig, good, lo, hi, dx):
     model = np.zeros_like(r)
     for passes in range(2):
         if passes == 1:
-            crowded = [i for i, (a, b) in enumerate(windows)
-                       if any(j != i and windows[j][0] < b and windows[j][1] > a
-                              for j in range(len(windows)))]
+            # a window is crowded when it overlaps another (groups are ordered by pixel)
+            a_arr = np.array([w_[0] for w_ in windows])
+            b_arr = np.array([w_[1] for w_ in windows])
+            order = np.argsort(a_arr, kind="stable")
+            a_s, b_s = a_arr[order], b_arr[order]
+            prev_end = np.concatenate([[-np.inf], np.maximum.accumulate(b_s)[:-1]])
+            next_start = np.concatenate([np.minimum.accumulate(a_s[::-1])[::-1][1:], [np.inf]])
+            hit = (a_s < prev_end) | (b_s > next_start)
+            crowded = sorted(order[hit].tolist())
             if not crowded:
                 break
         else:

@@ -95,19 +95,25 @@ def _components(lo, hi):
 
 
 def _best_per_row(rows, ll, nf):
-    """Index (into the pairs) of each feature's most likely line, -1 where it has none."""
-    order = np.lexsort((-ll, rows))
-    r = rows[order]
-    first = np.ones(len(r), dtype=bool)
-    first[1:] = r[1:] != r[:-1]
+    """Index (into the pairs) of each feature's most likely line, -1 where it has none.
+
+    `rows` must be ascending (as `candidate_pairs` returns them)."""
     top = np.full(nf, -1)
-    top[r[first]] = order[first]
-    return top, order, first
+    if not len(rows):
+        return top
+    first = np.ones(len(rows), dtype=bool)
+    first[1:] = rows[1:] != rows[:-1]
+    starts = np.flatnonzero(first)
+    row_max = np.maximum.reduceat(ll, starts)
+    span = np.diff(np.append(starts, len(rows)))
+    idx = np.where(ll == np.repeat(row_max, span), np.arange(len(rows)), len(rows))
+    top[rows[starts]] = np.minimum.reduceat(idx, starts)
+    return top
 
 
 def _choose(rows, cols, ll, nf, comp):
     """Global choice: each feature its best hypothesis, exact assignment where lines collide."""
-    top, _, _ = _best_per_row(rows, ll, nf)
+    top = _best_per_row(rows, ll, nf)
     choice = np.full(nf, -1)
     has = top >= 0
     good = has.copy()
@@ -120,8 +126,13 @@ def _choose(rows, cols, ll, nf, comp):
         return choice
     clash_feats = np.flatnonzero(np.isin(choice, clash_lines))
     pair_comp = comp[rows]
-    for c in np.unique(comp[clash_feats]):
-        sel = np.flatnonzero(pair_comp == c)
+    todo = np.unique(comp[clash_feats])
+    in_todo = np.flatnonzero(np.isin(pair_comp, todo))
+    in_todo = in_todo[np.argsort(pair_comp[in_todo], kind="stable")]
+    bounds = np.searchsorted(pair_comp[in_todo], todo)
+    bounds = np.append(bounds, len(in_todo))
+    for k in range(len(todo)):
+        sel = in_todo[bounds[k]:bounds[k + 1]]
         f_ids, f_loc = np.unique(rows[sel], return_inverse=True)
         l_ids, l_loc = np.unique(cols[sel], return_inverse=True)
         k, m = len(f_ids), len(l_ids)
@@ -168,7 +179,7 @@ def assign(y, sy, flux, blend, x, strength, group, s, *, tol=TOL):
         ll = base + _intensity_prior(choice, flux, st, gcode, rows, cols)
         choice = _choose(rows, cols, ll, nf, comp)
     # blends may share a line: a blended feature left without one keeps its best candidate
-    top, _, _ = _best_per_row(rows, ll, nf)
+    top = _best_per_row(rows, ll, nf)
     blend = np.asarray(blend, dtype=bool)
     lone = (choice < 0) & blend & (top >= 0)
     choice[lone] = cols[top[lone]]
@@ -181,7 +192,7 @@ def assign(y, sy, flux, blend, x, strength, group, s, *, tol=TOL):
     out.score[ci] = like[chosen_pair] / total[ci]
     out.resid[ci] = d[chosen_pair]
     # alternatives: the next most likely lines of each feature
-    _, srt, _ = _best_per_row(rows, ll, nf)
+    srt = np.lexsort((-ll, rows))
     r = rows[srt]
     not_best = cols[srt] != choice[r]
     alt = srt[not_best]
