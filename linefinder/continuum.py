@@ -57,9 +57,44 @@ def _knots(good_idx, n, knot_px):
     return np.concatenate([[t0] * 4, [k for k in keep if t0 < k < t1], [t1] * 4])
 
 
+CHUNK_PX = 16384
+
+
 def fit_continuum(y, sigma, good, *, knot_px=60, clip=(3.0, 3.0), iterations=10, grow=2,
                   exclude=None):
-    """Continuum of one segment; returns (continuum, pixels used)."""
+    """Continuum of one segment; returns (continuum, pixels used).
+
+    Long segments are fitted in overlapping chunks of about `CHUNK_PX` pixels,
+    cross-faded linearly over the overlap, so the cost stays linear in the
+    number of pixels (the spline's normal equations grow faster than that).
+    """
+    n = len(y)
+    overlap = int(max(4 * knot_px, 1024))
+    if n > CHUNK_PX + 2 * overlap:
+        cont = np.zeros(n)
+        used = np.zeros(n, dtype=bool)
+        weight = np.zeros(n)
+        step = CHUNK_PX
+        for a in range(0, n, step):
+            lo, hi = max(0, a - overlap), min(n, a + step + overlap)
+            c, u_ = _fit_one(y[lo:hi], sigma[lo:hi], good[lo:hi], knot_px=knot_px, clip=clip,
+                             iterations=iterations, grow=grow,
+                             exclude=None if exclude is None else exclude[lo:hi])
+            ramp = np.ones(hi - lo)
+            left, right = a - lo, hi - min(n, a + step)
+            if left:
+                ramp[:2 * left] = np.linspace(0, 1, 2 * left + 2)[1:-1]
+            if right:
+                ramp[-2 * right:] = np.linspace(1, 0, 2 * right + 2)[1:-1]
+            cont[lo:hi] += ramp * c
+            weight[lo:hi] += ramp
+            used[lo:hi] |= u_
+        return cont / np.where(weight > 0, weight, 1.0), used
+    return _fit_one(y, sigma, good, knot_px=knot_px, clip=clip, iterations=iterations, grow=grow,
+                    exclude=exclude)
+
+
+def _fit_one(y, sigma, good, *, knot_px, clip, iterations, grow, exclude):
     n = len(y)
     use = good.copy()
     if exclude is not None:

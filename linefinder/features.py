@@ -26,7 +26,7 @@ import numpy as np
 from astropy import units as u
 from astropy.table import QTable
 from scipy.ndimage import correlate1d
-from scipy.signal import find_peaks
+from scipy.signal import find_peaks, oaconvolve
 
 from .continuum import fit_continuum, robust_noise
 from .errors import SpectrumFormatError
@@ -57,8 +57,15 @@ def _matched_snr(r, w, fwhm_px):
     sig = fwhm_px / GAUSS_FWHM
     half = int(np.ceil(3 * sig))
     k = np.exp(-0.5 * (np.arange(-half, half + 1) / sig) ** 2)
-    num = correlate1d(w * r, k, mode="constant")
-    den = correlate1d(w, k ** 2, mode="constant")
+    if len(k) > 64 and len(r) > 4 * len(k):
+        # long kernels: overlap-add FFT convolution (the kernel is symmetric, so this is the
+        # same zero-padded correlation, at a cost that does not grow with the kernel)
+        num = oaconvolve(w * r, k, mode="same")
+        den = oaconvolve(w, k ** 2, mode="same")
+        den[den < 1e-9 * max(float(den.max()), 1e-300)] = 0.0   # FFT round-off where w = 0
+    else:
+        num = correlate1d(w * r, k, mode="constant")
+        den = correlate1d(w, k ** 2, mode="constant")
     with np.errstate(invalid="ignore", divide="ignore"):
         snr = np.where(den > 0, num / np.sqrt(den), 0.0)
         amp = np.where(den > 0, num / den, 0.0)
@@ -300,22 +307,31 @@ def _exclusion(feats, n, fallback, half_widths=2.5):
 
 
 def _new_feats(cands, feats):
+    """Candidates not already represented by a feature (within 0.7 of the narrower width)."""
+    known = sorted((g["px"], g["fwhm_px"]) for g in feats)
+    widest = max((w_ for _, w_ in known), default=0.0)
     added = []
     for px, f, s, amp in cands:
-        if any(abs(px - g["px"]) < 0.7 * min(f, g["fwhm_px"]) for g in feats + added):
+        reach = 0.7 * max(f, widest)
+        lo = bisect.bisect_left(known, (px - reach, -np.inf))
+        hi = bisect.bisect_right(known, (px + reach, np.inf))
+        if any(abs(px - p) < 0.7 * min(f, w_) for p, w_ in known[lo:hi]):
             continue
         added.append({"px": px, "fwhm_px": f, "snr_det": s, "amp0": amp, "fit": None, "group": 1})
+        bisect.insort(known, (px, f))
+        widest = max(widest, f)
     return added
 
 
 def _sync(feats, x, dx):
     """Move candidates to their fitted centres and widths."""
     n = len(x)
+    med_dx = float(np.median(dx))
     for g in feats:
         fit = g["fit"]
         if fit and fit["ok"] and np.isfinite(fit["center"]):
             g["px"] = int(np.clip(np.searchsorted(x, fit["center"]), 0, n - 1))
-            g["fwhm_px"] = max(fit["fwhm"] / np.median(dx), 1.0)
+            g["fwhm_px"] = max(fit["fwhm"] / med_dx, 1.0)
             g["amp0"] = fit["amplitude"]
 
 
@@ -365,10 +381,8 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
         feats = _new_feats(_candidates(y - cont, w, fwhm_px, threshold, kinds, n), [])
         if not feats:
             break
-        _fit_groups(_groups(feats), x, y - cont, sig, good, 0, n, dx)
-        _sync(feats, x, dx)
-        broad = [f for f in feats if f["fit"] and f["fit"]["amplitude"] < 0 and
-                 f["fwhm_px"] > 6 * fwhm_px]
+        # widths from the matched-filter scale (within a factor ~1.4): no profile fits yet
+        broad = [f for f in feats if f["amp0"] < 0 and f["fwhm_px"] > 6 * fwhm_px]
         if broad:
             # broad absorption (stellar Balmer lines): the continuum is the upper envelope,
             # with knots wider than the wings and clipping that is harder below than above
@@ -395,12 +409,13 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
         model = _fit_groups(_groups(feats), x, r, sig, good, 0, n, dx)
         _sync(feats, x, dx)
     rows = []
+    med_dx = float(np.median(dx))
     for g in feats:
         fit = g["fit"]
         if fit is None or not np.isfinite(fit["center"]):
             continue
         snr_fit = abs(fit["flux"]) / fit["flux_err"] if fit["flux_err"] > 0 else 0.0
-        fpx = fit["fwhm"] / max(np.median(dx), 1e-300)
+        fpx = fit["fwhm"] / max(med_dx, 1e-300)
         if (fpx < 0.8) or (fwhm_px >= 1.5 and fpx < 0.45 * fwhm_px):
             continue   # a single-pixel spike (cosmic ray, hot pixel)
         ipx = int(np.clip(np.searchsorted(x, fit["center"]), 0, n - 1))
