@@ -29,7 +29,7 @@ __all__ = ["read_text", "PEAK_CENTER_NAMES"]
 AXIS_NAMES = ("wavelength", "wave", "lambda", "wl", "lam", "wavelength_air", "wavelength_vacuum",
               "frequency", "freq", "nu", "energy", "e", "wavenumber", "sigma_cm", "velocity", "x")
 FLUX_NAMES = ("flux", "intensity", "counts", "count", "signal", "f", "y", "ta", "t_a", "tmb",
-              "t_mb", "tant", "brightness", "flux_density", "rate")
+              "t_mb", "tant", "t", "temperature", "t_b", "tb", "brightness", "flux_density", "rate")
 SIGMA_NAMES = ("error", "err", "sigma", "flux_err", "flux_error", "uncertainty", "unc", "noise",
                "stddev", "std", "dflux", "e_flux", "fluxerr")
 IVAR_NAMES = ("ivar", "invvar", "inverse_variance", "weight")
