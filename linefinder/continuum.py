@@ -74,18 +74,17 @@ def fit_continuum(y, sigma, good, *, knot_px=60, clip=(3.0, 3.0), iterations=10,
         cont = np.zeros(n)
         used = np.zeros(n, dtype=bool)
         weight = np.zeros(n)
-        step = CHUNK_PX
-        for a in range(0, n, step):
-            lo, hi = max(0, a - overlap), min(n, a + step + overlap)
+        edges = np.linspace(0, n, int(np.ceil(n / CHUNK_PX)) + 1).astype(int)
+        for a, b in zip(edges[:-1], edges[1:]):
+            lo, hi = max(0, a - overlap), min(n, b + overlap)
             c, u_ = _fit_one(y[lo:hi], sigma[lo:hi], good[lo:hi], knot_px=knot_px, clip=clip,
                              iterations=iterations, grow=grow,
                              exclude=None if exclude is None else exclude[lo:hi])
-            ramp = np.ones(hi - lo)
-            left, right = a - lo, hi - min(n, a + step)
-            if left:
-                ramp[:2 * left] = np.linspace(0, 1, 2 * left + 2)[1:-1]
-            if right:
-                ramp[-2 * right:] = np.linspace(1, 0, 2 * right + 2)[1:-1]
+            # tent weights: 1 well inside the chunk, falling to ~0 at an inner chunk edge
+            idx = np.arange(lo, hi)
+            left = (idx - lo + 1) / overlap if lo > 0 else np.inf
+            right = (hi - idx) / overlap if hi < n else np.inf
+            ramp = np.clip(np.minimum(left, right), 1e-3, 1.0)
             cont[lo:hi] += ramp * c
             weight[lo:hi] += ramp
             used[lo:hi] |= u_
