@@ -14,6 +14,7 @@ and a fraction (default 0.1) of the resolution element; all three are
 recorded in the result's metadata.
 """
 
+import functools
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -89,18 +90,20 @@ def _strengths(cat, kind="emission"):
     if kind == "absorption":
         return _absorption_strengths(cat)
     strength = np.zeros(len(cat))
-    key = [f"{a}|{b}" for a, b in zip(cat["species"], cat["series"])]
+    key = np.char.add(np.char.add(np.asarray(cat["species"]).astype(str), "|"),
+                      np.asarray(cat["series"]).astype(str))
     base = np.asarray(cat["rel_intensity"], dtype=float)
     # optically thin g_u A h nu (absolute, so that series can be joined to the Case B table)
     thin = np.asarray(cat["g_upper"] * cat["a_ul"].to_value(u.s ** -1)
                       / cat["rest_wavelength_vacuum"].to_value(u.m), dtype=float)
     # share of each row (a component or a blend of them) in its n -> n' multiplet
-    mult = np.array([f"{a}|{b}|{c}" for a, b, c in zip(cat["species"], cat["n_lower"],
-                                                         cat["n_upper"])])
-    _, inv = np.unique(mult, return_inverse=True)
+    _, inv = np.unique(np.stack([np.unique(key, return_inverse=True)[1].ravel(),
+                                 np.asarray(cat["n_lower"]), np.asarray(cat["n_upper"])]),
+                       axis=1, return_inverse=True)
+    inv = inv.ravel()
     share = thin / np.bincount(inv, weights=thin)[inv]
-    for k in set(key):
-        sel = np.array([kk == k for kk in key])
+    for k in np.unique(key):
+        sel = key == k
         vals = base[sel].copy()
         if k.startswith("H I|") or k.startswith("D I|"):
             nl = np.asarray(cat["n_lower"][sel])
@@ -113,7 +116,7 @@ def _strengths(cat, kind="emission"):
     species = np.asarray(cat["species"]).astype(str)
     primary = "H I" if "H I" in set(species) else (species[0] if len(species) else "")
     strength = np.where(species == primary, strength, 0.25 * strength)
-    return strength, np.array(key)
+    return strength, key
 
 
 def _absorption_strengths(cat):
@@ -127,6 +130,14 @@ def _absorption_strengths(cat):
     species = np.asarray(cat["species"]).astype(str)
     primary = "H I" if "H I" in set(species) else (species[0] if len(species) else "")
     return np.where(species == primary, strength, 0.25 * strength), key
+
+
+@functools.lru_cache(maxsize=64)
+def _thin_reference(n_lower, n_upper):
+    """g_u A / lambda of one H I multiplet (the same measure as `_strengths` uses)."""
+    ref = build_catalogue("H", n_lower, n_upper)
+    return float(ref["g_upper"][0] * ref["a_ul"][0].to_value(u.s ** -1)
+                 / ref["rest_wavelength_vacuum"][0].to_value(u.m))
 
 
 def _case_b_extended(nl, nu, thin):
@@ -143,10 +154,7 @@ def _case_b_extended(nl, nu, thin):
             out[sel] = thin[sel] / np.max(thin[nl == lower])
             continue
         last = max(tab, key=lambda k: k[1])
-        ref = build_catalogue("H", lower, last[1])
-        ref = float(ref["g_upper"][0] * ref["a_ul"][0].to_value(u.s ** -1)
-                    / ref["rest_wavelength_vacuum"][0].to_value(u.m))
-        out[sel] = CASE_B_HBETA[last] * thin[sel] / ref
+        out[sel] = CASE_B_HBETA[last] * thin[sel] / _thin_reference(int(lower), int(last[1]))
     return out
 
 

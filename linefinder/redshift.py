@@ -247,7 +247,7 @@ def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterati
     With `flux`, the score adds `_intensity_evidence` of the matched lines
     (beyond the first: one flux only sets the scale).  `line_weight` scales
     the evidence each line can give (identify gives lines of species other than
-    the primary one half weight: a He II or D I pattern without H I support is
+    the primary one half weight, and half again when no primary line is matched: a He II or D I pattern without H I support is
     less believable, and He II n -> 2 lines repeat the Balmer series at four
     times the wavelength)."""
     s = float(s0)
@@ -284,6 +284,8 @@ def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterati
         gains = _evidence(resid, sy[fi], strength[lj], total, width)
         if line_weight is not None:
             gains = gains * line_weight[lj]
+            if not np.any(line_weight[lj] >= 1):
+                gains = gains * 0.5   # no primary-species line at all: half again
         score = float(np.sum(gains) - np.max(gains))   # the first line is free
         missing, cost = _missing_lines(s_new, y, sy, w, x, strength, fi, lj, used_l, window, tol,
                                        fwhm_ln, group)
