@@ -14,11 +14,13 @@ features, and pi_j = f * strength_j / sum(strength in the window) the prior
 share of features that line j explains (f = 0.5).  Crowded stretches of the
 catalogue (series limits) thus carry less evidence per match than isolated
 strong lines.  The best single term is not counted (a shift fitted to one
-line always explains that line), and each strong line (expected strength >=
-0.2) that the shift puts inside the window but that no feature explains
-costs one unit.  The best distinct solutions are refined by weighted least
-squares on their matched lines, giving z with its 1-sigma error, chi^2 and
-the evidence against the others (difference of scores, in nats).
+line always explains that line).  The best distinct trial shifts are refined
+by weighted least squares on their matched lines, giving z with its 1-sigma
+error and chi^2; the refined score adds whether the matched fluxes follow the
+expected strengths (`_intensity_evidence`) and subtracts the lines of a
+matched series expected above the detection limit but absent
+(`_missing_lines`).  The evidence against the others is the difference of
+scores, in nats.
 
 Status:
 * ``secure``: at least 3 matched lines, acceptable chi^2, a score of at
@@ -91,7 +93,7 @@ def _window_strength(xs, cum, s_values, window):
     return cum[hi] - cum[lo]
 
 
-def _score(s_values, y, sy, w, x, strength, kinds_ok, window, tol, missing_weight):
+def _score(s_values, y, sy, x, strength, kinds_ok, window, tol):
     """Scores (log-likelihood ratios) of many trial shifts at once (K trials x F features)."""
     order = np.argsort(x)
     xs = x[order]
@@ -105,16 +107,8 @@ def _score(s_values, y, sy, w, x, strength, kinds_ok, window, tol, missing_weigh
     total = _window_strength(xs, cum, s_values, window)[:, None]
     gain = np.where(ok, _evidence(d, sy[None, :], st[j], total, width), 0.0)
     # the first line is free: any single feature matches some line at some shift
+    # (missing lines are costed in `refine`, per series, where the scale is known)
     score = gain.sum(axis=1) - gain.max(axis=1)
-    if missing_weight > 0:
-        strong = strength >= 0.3
-        if np.any(strong):
-            xo = x[strong][None, :] + s_values[:, None]
-            inside = (xo > window[0]) & (xo < window[1])
-            ys = np.sort(y)
-            k = _nearest(ys, xo) if len(ys) > 1 else np.zeros(xo.shape, dtype=int)
-            seen = np.abs(ys[k] - xo) < tol * np.median(sy)
-            score = score - missing_weight * np.sum(inside & ~seen, axis=1)
     return score
 
 
@@ -140,8 +134,8 @@ def search_shift(y, sy, w, x, strength, *, smin, smax, kinds_ok=None, tol=3.0, n
     cand = np.unique(np.round(cand / step)) * step
     if window is None:
         window = (y.min() - 3 * sy.max(), y.max() + 3 * sy.max())
-    scores = np.concatenate([_score(cand[i:i + 2000], y, sy, w, x, strength, kinds_ok, window, tol,
-                                    0.0) for i in range(0, len(cand), 2000)])
+    scores = np.concatenate([_score(cand[i:i + 2000], y, sy, x, strength, kinds_ok, window, tol)
+                             for i in range(0, len(cand), 2000)])
     order = np.argsort(-scores)
     chosen = []
     sep = tol * float(np.median(sy))

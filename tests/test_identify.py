@@ -18,6 +18,9 @@ def _correct(z, z0):
     return z is not None and abs(z - z0) < 5e-4 * (1 + z0)
 
 
+# Exact aliases of hydrogenic spectra (Rydberg formula, 1/lambda = R Z^2 (1/n'^2 - 1/n^2)):
+# H(2m) Balmer lines = 4 x Ly(m), and He II n -> 2 = 4 x H I Balmer (Z^2 = 4) up to the
+# reduced-mass difference; the cases below must land on the true redshift, not the alias.
 @pytest.mark.parametrize("z, R, kind, seed", [
     (0.2512, 3000.0, "emission", 4),     # Balmer + [O III], [N II] ... emitter
     (3.4846, 1410.0, "absorption", 60),  # Lyman series absorber: not the Balmer alias at z/4
@@ -75,6 +78,7 @@ def test_two_systems_in_one_spectrum(rng):
 
 
 def test_xray_sample_keV_axis():
+    # the sample's ground truth (invented scenario): z = 0.0183, Fe XXVI Lyman-alpha doublet
     spec = read_input(sample_path("xray_cluster.fits"))
     truth = json.loads(sample_path("xray_cluster.fits.truth.json").read_text())
     res = identify(spec)

@@ -36,6 +36,7 @@ def test_fits_linear_image_with_err_extension(tmp_path):
 
 
 def test_fits_awav_is_air_and_ivar_becomes_sigma(tmp_path):
+    # CTYPE1 = AWAV means air wavelengths (FITS WCS Paper III, Greisen et al. 2006)
     p = tmp_path / "air.fits"
     hdr = fits.Header({"CTYPE1": "AWAV", "CUNIT1": "nm", "CRVAL1": 500.0, "CD1_1": 0.1,
                        "CRPIX1": 1.0})
@@ -48,6 +49,9 @@ def test_fits_awav_is_air_and_ivar_becomes_sigma(tmp_path):
 
 
 def test_fits_log_linear_and_dc_flag(tmp_path):
+    # -LOG axis: lambda = CRVAL1 exp(CDELT1 (p - CRPIX1) / CRVAL1) (FITS WCS Paper III,
+    # Greisen et al. 2006, A&A 446, 747); DC-FLAG = 1: log10(lambda) linear in the pixel
+    # (IRAF convention, recalled from memory)
     p1, p2 = tmp_path / "log.fits", tmp_path / "dcflag.fits"
     _image(p1, np.ones(30), CTYPE1="WAVE-LOG", CUNIT1="Angstrom", CRVAL1=4000.0,
            CDELT1=4000.0 * 1e-4, CRPIX1=1.0)
