@@ -111,7 +111,9 @@ def evaluate(results):
     conf = Counter()
     n_true = n_rec = n_lab = n_lab_ok = 0
     sec_lab = sec_ok = 0
+    zok_true = zok_rec = 0
     for r in signal:
+        z_right = correct(r)
         feats = r["features"]
         truth_lines = r["truth"]["lines"]
         obs = np.sort([l["observed"] for l in truth_lines])
@@ -123,9 +125,11 @@ def evaluate(results):
                 conf["H line unresolved from a neighbour (not counted)"] += 1
                 continue
             n_true += 1
+            zok_true += z_right
             near = [f for f in feats if _near(f, l["observed"])]
             if any(f["label"] == l["label"] for f in near):
                 n_rec += 1
+                zok_rec += z_right
                 conf["H line -> right label"] += 1
             elif not near:
                 conf["H line -> not detected"] += 1
@@ -154,6 +158,8 @@ def evaluate(results):
                 conf["labelled: noise or spike"] += 1
     lines.append(f"identification recall (resolved H lines S/N >= 6): {n_rec}/{n_true} = "
                  f"{100 * n_rec / max(n_true, 1):.1f} % (target >= 95 %)")
+    lines.append(f"  of which in spectra whose z is right: {zok_rec}/{zok_true} = "
+                 f"{100 * zok_rec / max(zok_true, 1):.1f} % (without a redshift no line is named)")
     lines.append(f"identification precision (hydrogenic labels): {n_lab_ok}/{n_lab} = "
                  f"{100 * n_lab_ok / max(n_lab, 1):.1f} % (target >= 99 %)")
     lines.append(f"  of which in spectra with a 'secure' z: {sec_ok}/{sec_lab} = "

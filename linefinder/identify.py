@@ -119,6 +119,23 @@ def _strengths(cat, kind="emission"):
     return strength, key
 
 
+@functools.lru_cache(maxsize=8)
+def _catalogue(names, lower, upper, R, lam_min, lam_max, kind, series):
+    """The identification catalogue and its expected strengths and groups; the last few
+    are kept for the next spectrum of a batch (callers must not modify them in place)."""
+    # fine-structure components merged at the resolution: resolved doublets (X-ray
+    # Lyman-alpha of heavy ions, H I at very high R) keep their own positions
+    cat = build_catalogue(list(names), lower, upper, fine=True, resolution=R,
+                          wavelength_range=(lam_min * u.m, lam_max * u.m))
+    if series:
+        wanted = {s.lower() for s in series}
+        cat = cat[[str(s).lower() in wanted for s in cat["series"]]]
+    strength, group = _strengths(cat, kind) if len(cat) else (np.zeros(0), np.zeros(0, dtype=str))
+    for arr in (strength, group):
+        arr.flags.writeable = False
+    return cat, strength, group
+
+
 def _absorption_strengths(cat):
     key = np.array([f"{a}|{b}" for a, b in zip(cat["species"], cat["series"])])
     tau = np.asarray(cat["f_lu"], dtype=float) * cat["rest_wavelength_vacuum"].to_value(u.m)
@@ -255,19 +272,17 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     else:
         lam_rest_min, lam_rest_max = 1e-10, 1e-5
     lower, upper = _n_ranges(reg, lam_rest_min, lam_rest_max)
-    # fine-structure components merged at the resolution: resolved doublets (X-ray
-    # Lyman-alpha of heavy ions, H I at very high R) keep their own positions
-    cat = build_catalogue(names, lower, upper, fine=True, resolution=R,
-                          wavelength_range=(lam_rest_min * u.m, lam_rest_max * u.m))
-    if series:
-        wanted = {s.lower() for s in series}
-        cat = cat[[str(s).lower() in wanted for s in cat["series"]]]
     snr_kind = np.nan_to_num(np.asarray(feats["snr"], dtype=float)) if len(feats) else np.zeros(0)
     kinds_arr = np.asarray(feats["kind"]).astype(str) if len(feats) else np.zeros(0, str)
     main_kind = "absorption" if snr_kind[kinds_arr == "absorption"].sum() > \
         snr_kind[kinds_arr == "emission"].sum() else "emission"
-    strength, group = _strengths(cat, main_kind) if len(cat) else (np.zeros(0),
-                                                                    np.zeros(0, dtype=str))
+    # a slightly wider range and R on coarse grids, so that spectra of one survey share it
+    q = 0.05
+    lmin = float(np.exp(np.floor(np.log(lam_rest_min) / q) * q))
+    lmax = float(np.exp(np.ceil(np.log(lam_rest_max) / q) * q))
+    r_grid = float(np.exp(np.round(np.log(R) / 0.1) * 0.1))
+    cat, strength, group = _catalogue(tuple(names), tuple(lower), tuple(upper), r_grid, lmin, lmax,
+                                      main_kind, tuple(series) if series else None)
     keep = strength >= 1e-3
     cat, strength, group = cat[keep], strength[keep], group[keep]
     group_codes = np.unique(group, return_inverse=True)[1] if len(group) else np.zeros(0, int)
