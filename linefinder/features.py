@@ -166,8 +166,12 @@ def _group_model(g, x, a, b):
     return out
 
 
-def _fit_groups(groups, x, r, sig, good, lo, hi, dx):
-    """Fit every group; a second pass refits each with its neighbours' models subtracted."""
+def _fit_groups(groups, x, r, sig, good, lo, hi, dx, changed=None):
+    """Fit every group; a second pass refits each with its neighbours' models subtracted.
+
+    With `changed` (ids of features added since the last call), only groups that hold
+    one of them or whose window touches such a group are refitted; the others keep
+    their fits and enter the model as they are."""
     windows = []
     for g in groups:
         span = max(f["fwhm_px"] for f in g)
@@ -175,6 +179,19 @@ def _fit_groups(groups, x, r, sig, good, lo, hi, dx):
         b = min(hi, int(max(f["px"] for f in g) + 3 * span) + 3)
         windows.append((a, b))
     model = np.zeros_like(r)
+    todo = range(len(groups))
+    if changed is not None:
+        hot = [i for i, g in enumerate(groups)
+               if any(id(f) in changed for f in g) or any(f.get("fit") is None for f in g)]
+        hot_set = set(hot)
+        hot_windows = [windows[i] for i in hot]
+        todo = [i for i, (a, b) in enumerate(windows)
+                if i in hot_set or any(a < hb and b > ha for ha, hb in hot_windows)]
+        todo_set = set(todo)
+        keep = set(range(len(groups))) - todo_set
+        for i in keep:
+            a, b = windows[i]
+            model[a:b] += _group_model(groups[i], x, a, b)
     for passes in range(2):
         if passes == 1:
             # a window is crowded when it overlaps another (groups are ordered by pixel)
@@ -189,7 +206,9 @@ def _fit_groups(groups, x, r, sig, good, lo, hi, dx):
             if not crowded:
                 break
         else:
-            crowded = range(len(groups))
+            crowded = todo
+        if passes == 1 and changed is not None:
+            crowded = [i for i in crowded if i in todo_set]
         for i in crowded:
             g = groups[i]
             a, b = windows[i]
@@ -406,7 +425,8 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
                 break
         elif not added:
             break
-        model = _fit_groups(_groups(feats), x, r, sig, good, 0, n, dx)
+        model = _fit_groups(_groups(feats), x, r, sig, good, 0, n, dx,
+                            changed=None if round_ == 0 else {id(f) for f in added})
         _sync(feats, x, dx)
     rows = []
     med_dx = float(np.median(dx))
