@@ -285,7 +285,7 @@ def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorpt
         fwhm_px = max(fwhm_px, 1.0)
         seg_rows, cont = _segment(x, y, sig, good, dx, fwhm_px, snr, kinds, knot_px, lo)
         if not R:
-            narrow = [f["fwhm"] / np.median(dx) for f in seg_rows
+            narrow = [f["fwhm"] / dx[f["pixel"] - lo] for f in seg_rows
                       if f["group"] == 1 and f["snr"] > 10 and "poor_fit" not in f["flags"]]
             estimated_widths.extend(narrow)
         cont_all[lo:hi] = cont
@@ -345,12 +345,11 @@ def _new_feats(cands, feats):
 def _sync(feats, x, dx):
     """Move candidates to their fitted centres and widths."""
     n = len(x)
-    med_dx = float(np.median(dx))
     for g in feats:
         fit = g["fit"]
         if fit and fit["ok"] and np.isfinite(fit["center"]):
             g["px"] = int(np.clip(np.searchsorted(x, fit["center"]), 0, n - 1))
-            g["fwhm_px"] = max(fit["fwhm"] / med_dx, 1.0)
+            g["fwhm_px"] = max(fit["fwhm"] / dx[g["px"]], 1.0)   # local step: log grids vary
             g["amp0"] = fit["amplitude"]
 
 
@@ -406,7 +405,10 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
             # broad absorption (stellar Balmer lines): the continuum is the upper envelope,
             # with knots wider than the wings and clipping that is harder below than above
             exclude, _ = _exclusion(broad, n, lambda f: f["fwhm_px"], half_widths=1.0)
-            knots = max(base_knots, 3.0 * max(f["fwhm_px"] for f in broad), n / 8)
+            # (wider than the wings; an eighth of the segment at most, so that a long
+            # spectrum with one broad line keeps a continuum that can follow it elsewhere)
+            widest = max(f["fwhm_px"] for f in broad)
+            knots = max(base_knots, 3.0 * widest, min(6.0 * widest, n / 8))
             cont, _ = fit_continuum(y, sig, good, knot_px=min(knots, max(n // 2, 8)),
                                     exclude=exclude, clip=(3.5, 1.5), iterations=20)
         else:
@@ -429,16 +431,15 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
                             changed=None if round_ == 0 else {id(f) for f in added})
         _sync(feats, x, dx)
     rows = []
-    med_dx = float(np.median(dx))
     for g in feats:
         fit = g["fit"]
         if fit is None or not np.isfinite(fit["center"]):
             continue
         snr_fit = abs(fit["flux"]) / fit["flux_err"] if fit["flux_err"] > 0 else 0.0
-        fpx = fit["fwhm"] / max(med_dx, 1e-300)
+        ipx = int(np.clip(np.searchsorted(x, fit["center"]), 0, n - 1))
+        fpx = fit["fwhm"] / max(dx[ipx], 1e-300)     # in local pixels: log grids vary
         if (fpx < 0.8) or (fwhm_px >= 1.5 and fpx < 0.45 * fwhm_px):
             continue   # a single-pixel spike (cosmic ray, hot pixel)
-        ipx = int(np.clip(np.searchsorted(x, fit["center"]), 0, n - 1))
         from_edge = min(ipx, n - 1 - ipx)
         if from_edge < 0.5 * fpx or fit["center"] < x[0] or fit["center"] > x[-1]:
             continue
