@@ -270,11 +270,8 @@ def _species_columns(sp, arrays, *, fine, factor, formula, air_conditions, wavel
     freq_obs = arrays["frequency"] / factor
     wl_nm = K.C / freq_obs * 1e9
     count = np.ones(len(wl_nm), dtype=int)
-    components = None
     if resolution is not None and len(wl_nm):
-        arrays, count, group = _merge_blends(arrays, wl_nm, resolution, fine)
-        if fine and np.any(count > 1):
-            components = count
+        arrays, count, _ = _merge_blends(arrays, wl_nm, resolution, fine)
         freq_obs = arrays["frequency"] / factor
         wl_nm = K.C / freq_obs * 1e9
     intensity = arrays["g_upper"] * arrays["a_ul"] * arrays["frequency"]

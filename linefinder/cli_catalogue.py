@@ -4,7 +4,6 @@ import json
 import re
 import sys
 
-import numpy as np
 from astropy import units as u
 from astropy.table import Table
 

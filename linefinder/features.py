@@ -23,7 +23,6 @@ import bisect
 from dataclasses import dataclass, field
 
 import numpy as np
-from astropy import units as u
 from astropy.table import QTable
 from scipy.ndimage import correlate1d
 from scipy.signal import find_peaks, oaconvolve

@@ -218,7 +218,7 @@ def read_fits(path, *, index=None, hdu=None, medium=None, input_unit=None):
         if hdu is not None:
             key = int(hdu) if str(hdu).lstrip("-").isdigit() else str(hdu)
             try:
-                h = hdul[key]
+                hdul[key]
             except (KeyError, IndexError):
                 raise SpectrumFormatError(f"{path}: has no HDU {hdu!r} ({len(hdul)} HDUs)") from None
             chosen = hdul.index_of(key) if not isinstance(key, int) else key

@@ -25,7 +25,7 @@ from astropy.table import QTable
 
 from . import constants as K
 from .errors import QuantumNumberError
-from .qed import EULER_GAMMA, ZETA3, bethe_log, g_se, g_vp, harmonic, _se_without_g
+from .qed import ZETA3, bethe_log, g_se, g_vp, harmonic, _se_without_g
 from .species import parse_species
 
 __all__ = ["binding_energy_hz", "level_energy", "level_table", "level_label",
