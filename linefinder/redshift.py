@@ -161,6 +161,16 @@ def search_shift(y, sy, w, x, strength, *, smin, smax, kinds_ok=None, tol=3.0, n
 MISSING_SNR = 3.0      # fitted S/N below which an absent line is no surprise
 
 
+def _within(sorted_vals, x, tol):
+    """For each x: is any of sorted_vals closer than tol?"""
+    if not len(sorted_vals) or not len(x):
+        return np.zeros(len(x), dtype=bool)
+    k = np.searchsorted(sorted_vals, x)
+    left = np.abs(x - sorted_vals[np.clip(k - 1, 0, len(sorted_vals) - 1)])
+    right = np.abs(sorted_vals[np.clip(k, 0, len(sorted_vals) - 1)] - x)
+    return np.minimum(left, right) < tol
+
+
 def _missing_lines(s, y, sy, w, x, strength, fi, lj, used_l, window, tol, fwhm_ln=0.0,
                    group=None):
     """Lines the solution predicts above the detection limit that no feature explains.
@@ -200,22 +210,15 @@ def _missing_lines(s, y, sy, w, x, strength, fi, lj, used_l, window, tol, fwhm_l
             near_gap = np.minimum(np.concatenate([[np.inf], gap]), np.concatenate([gap, [np.inf]]))
             keep[order[near_gap < 2 * fwhm_ln]] = False
         inside = inside[keep]
-    missing, cost = [], 0.0
     tol_ln = max(tol * float(np.median(sy)), fwhm_ln)
-    ys = np.sort(y)
-    matched_x = np.sort(xo[lj])
-    for jj in inside:
-        pred = per_unit.get(group[jj], 0.0) * strength[jj]
-        if pred <= MISSING_SNR or jj in used_l:
-            continue
-        k = np.searchsorted(ys, xo[jj])
-        near = any(abs(ys[q] - xo[jj]) < tol_ln for q in (k - 1, k) if 0 <= q < len(ys))
-        m = np.searchsorted(matched_x, xo[jj])
-        near = near or any(abs(matched_x[q] - xo[jj]) < max(fwhm_ln, 1e-12)
-                           for q in (m - 1, m) if 0 <= q < len(matched_x))
-        if not near:
-            missing.append(int(jj))
-            cost += MISSING_COST * min((pred - MISSING_SNR) / 1.5, 4.0)
+    scale = np.array([per_unit.get(g, 0.0) for g in group[inside].tolist()])
+    pred = scale * strength[inside]
+    cand = (pred > MISSING_SNR) & ~np.isin(inside, list(used_l))
+    inside, pred = inside[cand], pred[cand]
+    seen = _within(np.sort(y), xo[inside], tol_ln) | _within(np.sort(xo[lj]), xo[inside],
+                                                               max(fwhm_ln, 1e-12))
+    missing = [int(j) for j in inside[~seen]]
+    cost = float(np.sum(MISSING_COST * np.minimum((pred[~seen] - MISSING_SNR) / 1.5, 4.0)))
     return missing, cost
 
 
