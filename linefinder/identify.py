@@ -78,6 +78,25 @@ def _n_ranges(reg, lam_rest_min, lam_rest_max):
     return (1, 6), (2, 40)
 
 
+def _group_keys(cat):
+    """'species|series' of every line: the groups within which strengths are relative."""
+    return np.char.add(np.char.add(np.asarray(cat["species"]).astype(str), "|"),
+                       np.asarray(cat["series"]).astype(str))
+
+
+def _thin(cat):
+    """Optically thin g_u A / lambda of every line (proportional to g_u A h nu)."""
+    return np.asarray(cat["g_upper"] * cat["a_ul"].to_value(u.s ** -1)
+                      / cat["rest_wavelength_vacuum"].to_value(u.m), dtype=float)
+
+
+def _is_primary(cat):
+    """True for lines of the primary species: H I when searched for, else the first one."""
+    species = np.asarray(cat["species"]).astype(str)
+    primary = "H I" if "H I" in set(species) else (species[0] if len(species) else "")
+    return species == primary
+
+
 def _strengths(cat, kind="emission"):
     """Expected strength of each line within its species and series (0..1).
 
@@ -87,15 +106,16 @@ def _strengths(cat, kind="emission"):
     the strength is (f lambda / max)^(1/3): a flat curve of growth, a rule of
     thumb of this tool.
     """
+    key = _group_keys(cat)
+    # across species: hydrogen dominates; helium, carbon and isotopes are usually far weaker
+    # (He/H ~ 0.1 by number; a rule of thumb for the search, not a physical claim)
+    species_weight = np.where(_is_primary(cat), 1.0, 0.25)
     if kind == "absorption":
-        return _absorption_strengths(cat)
+        return _absorption_strengths(cat, key) * species_weight, key
     strength = np.zeros(len(cat))
-    key = np.char.add(np.char.add(np.asarray(cat["species"]).astype(str), "|"),
-                      np.asarray(cat["series"]).astype(str))
     base = np.asarray(cat["rel_intensity"], dtype=float)
     # optically thin g_u A h nu (absolute, so that series can be joined to the Case B table)
-    thin = np.asarray(cat["g_upper"] * cat["a_ul"].to_value(u.s ** -1)
-                      / cat["rest_wavelength_vacuum"].to_value(u.m), dtype=float)
+    thin = _thin(cat)
     # share of each row (a component or a blend of them) in its n -> n' multiplet
     _, inv = np.unique(np.stack([np.unique(key, return_inverse=True)[1].ravel(),
                                  np.asarray(cat["n_lower"]), np.asarray(cat["n_upper"])]),
@@ -111,12 +131,7 @@ def _strengths(cat, kind="emission"):
             vals = _case_b_extended(nl, nu, thin[sel] / share[sel]) * share[sel]
         m = np.nanmax(vals) if len(vals) else 1.0
         strength[sel] = vals / m if m > 0 else 0.0
-    # across species: hydrogen dominates; helium, carbon and isotopes are usually far weaker
-    # (He/H ~ 0.1 by number; a rule of thumb for the search, not a physical claim)
-    species = np.asarray(cat["species"]).astype(str)
-    primary = "H I" if "H I" in set(species) else (species[0] if len(species) else "")
-    strength = np.where(species == primary, strength, 0.25 * strength)
-    return strength, key
+    return strength * species_weight, key
 
 
 @functools.lru_cache(maxsize=8)
@@ -136,25 +151,20 @@ def _catalogue(names, lower, upper, R, lam_min, lam_max, kind, series):
     return cat, strength, group
 
 
-def _absorption_strengths(cat):
-    key = np.array([f"{a}|{b}" for a, b in zip(cat["species"], cat["series"])])
+def _absorption_strengths(cat, key):
     tau = np.asarray(cat["f_lu"], dtype=float) * cat["rest_wavelength_vacuum"].to_value(u.m)
     strength = np.zeros(len(cat))
     for k in np.unique(key):
         sel = key == k
         m = tau[sel].max()
         strength[sel] = (tau[sel] / m) ** (1 / 3) if m > 0 else 0.0
-    species = np.asarray(cat["species"]).astype(str)
-    primary = "H I" if "H I" in set(species) else (species[0] if len(species) else "")
-    return np.where(species == primary, strength, 0.25 * strength), key
+    return strength
 
 
 @functools.lru_cache(maxsize=64)
 def _thin_reference(n_lower, n_upper):
     """g_u A / lambda of one H I multiplet (the same measure as `_strengths` uses)."""
-    ref = build_catalogue("H", n_lower, n_upper)
-    return float(ref["g_upper"][0] * ref["a_ul"][0].to_value(u.s ** -1)
-                 / ref["rest_wavelength_vacuum"][0].to_value(u.m))
+    return float(_thin(build_catalogue("H", n_lower, n_upper))[0])
 
 
 def _case_b_extended(nl, nu, thin):
@@ -286,9 +296,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     keep = strength >= 1e-3
     cat, strength, group = cat[keep], strength[keep], group[keep]
     group_codes = np.unique(group, return_inverse=True)[1] if len(group) else np.zeros(0, int)
-    cat_species = np.asarray(cat["species"]).astype(str)
-    primary = "H I" if "H I" in set(cat_species) else (cat_species[0] if len(cat) else "")
-    line_weight = np.where(cat_species == primary, 1.0, 0.5)
+    line_weight = np.where(_is_primary(cat), 1.0, 0.5) if len(cat) else np.zeros(0)
     x = np.log(cat["wavelength_vacuum"].to_value(u.m)) if len(cat) else np.zeros(0)
     y = np.log(lam) if len(lam) else np.zeros(0)
     snr_arr = np.asarray(feats["snr"], dtype=float) if len(feats) else np.zeros(0)
@@ -321,17 +329,16 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     # weak hydrogenic line cannot take a feature that the user's list explains better
     x_user = np.log([line["rest_vacuum_m"] for line in extra_lines]) if extra_lines else np.zeros(0)
     x_all = np.concatenate([x, x_user])
-    strength_all = np.concatenate([_defer_to_primary(x, strength, line_weight < 1, 1.0 / R),
-                                   np.ones(len(x_user))])
+    strength_assign = _defer_to_primary(x, strength, line_weight < 1, 1.0 / R)
+    strength_all = np.concatenate([strength_assign, np.ones(len(x_user))])
+    blend = np.array(["blend" in str(f) for f in feats["flags"]], dtype=bool)
     group_all = np.concatenate([np.asarray(group, dtype=str),
                                 np.array([f"user|{k}" for k in range(len(x_user))], dtype=str)])
     s_user = best_s if best_s is not None else 0.0
     if best_s is not None and status != "none" or (z is not None and best_s is not None):
         idx = np.flatnonzero(use)
-        flux = np.abs(np.asarray(feats["flux"].value if hasattr(feats["flux"], "value")
-                                 else feats["flux"], dtype=float))
-        blend = np.array(["blend" in str(f) for f in feats["flags"]])
-        res = assign(y[idx], sy[idx], flux[idx], blend[idx], x_all, strength_all, group_all, best_s)
+        res = assign(y[idx], sy[idx], flux_abs[idx], blend[idx], x_all, strength_all, group_all,
+                     best_s)
         _fill(out, idx, res, cat, y[idx], best_s, extra_lines)
     elif extra_lines and len(feats):
         # no hydrogenic solution: the user's lines are still matched at the rest frame (or z)
@@ -356,8 +363,8 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
             if more and classify(more) == "secure" and more[0].n_lines >= 4 and \
                     abs(more[0].s - sols[0].s) > 10 * max(sols[0].s_err, 1e-6):
                 systems.append(more[0])
-                res2 = assign(y[rest], sy[rest], np.ones(len(rest)), np.zeros(len(rest), bool), x,
-                              strength, group, more[0].s)
+                res2 = assign(y[rest], sy[rest], flux_abs[rest], blend[rest], x, strength_assign,
+                              group, more[0].s)
                 _fill(out, rest, res2, cat, y[rest], more[0].s, None, system=2)
     result = Identification(features=out, status=status, solutions=sols, lines=cat,
                             feature_result=feature_result, systems=systems)
