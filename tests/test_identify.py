@@ -51,7 +51,7 @@ def test_fixed_redshift_labels_lines(rng):
     found = {str(x) for x in res.features["label"] if x}
     assert found, "no line labelled at the fixed redshift"
     true_labels = {l["label"] for l in truth["lines"]}
-    assert found <= true_labels | {""} or len(found & true_labels) >= len(found) - 1
+    assert len(found - true_labels) <= 1      # at most one chance match to noise or a non-H line
 
 
 def test_two_systems_in_one_spectrum(rng):
@@ -83,7 +83,7 @@ def test_xray_sample_keV_axis():
     truth = json.loads(sample_path("xray_cluster.fits.truth.json").read_text())
     res = identify(spec)
     assert res.meta["regime"] == "xray"
-    assert _correct(res.z, truth["meta"]["z"] if "meta" in truth else truth["z"])
+    assert _correct(res.z, truth["z"])
     assert any("Fe XXVI" in s for s in res.features["species"])
 
 

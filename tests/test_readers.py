@@ -149,11 +149,17 @@ def test_spectral_unit_spellings(text, unit):
     assert parse_spectral_unit(text) == unit
 
 
-@pytest.mark.parametrize("text", ["erg/s/cm2/A", "FLAM", "FNU", "Jy", "1e-17 erg/s/cm2/A"])
-def test_flux_unit_spellings(text):
-    unit = parse_flux_unit(text)
-    assert not unit.is_equivalent(u.A * u.erg)     # never ampere
-    assert unit.physical_type is not None
+FLAM = u.erg / u.s / u.cm ** 2 / u.AA
+FNU = u.erg / u.s / u.cm ** 2 / u.Hz
+
+
+# FLAM / FNU: the HST/IRAF names of the per-Angstrom and per-Hz flux densities (common practice)
+@pytest.mark.parametrize("text, unit", [("erg/s/cm2/A", FLAM), ("FLAM", FLAM), ("FNU", FNU),
+                                        ("Jy", u.Jy), ("1e-17 erg/s/cm2/A", 1e-17 * FLAM)])
+def test_flux_unit_spellings(text, unit):
+    got = parse_flux_unit(text)
+    assert got.is_equivalent(unit)             # "A" is the Angstrom: never ampere
+    assert (1 * got).to_value(unit) == pytest.approx(1.0)
 
 
 def _bad_inputs(tmp_path):
