@@ -165,10 +165,7 @@ def _within(sorted_vals, x, tol):
     """For each x: is any of sorted_vals closer than tol?"""
     if not len(sorted_vals) or not len(x):
         return np.zeros(len(x), dtype=bool)
-    k = np.searchsorted(sorted_vals, x)
-    left = np.abs(x - sorted_vals[np.clip(k - 1, 0, len(sorted_vals) - 1)])
-    right = np.abs(sorted_vals[np.clip(k, 0, len(sorted_vals) - 1)] - x)
-    return np.minimum(left, right) < tol
+    return np.abs(sorted_vals[_nearest(sorted_vals, x)] - x) < tol
 
 
 def _missing_lines(s, y, sy, w, x, strength, fi, lj, used_l, window, tol, fwhm_ln=0.0,
@@ -222,10 +219,14 @@ def _missing_lines(s, y, sy, w, x, strength, fi, lj, used_l, window, tol, fwhm_l
     return missing, cost
 
 
-def _intensity_evidence(flux, strength, sigma, sigma_random=np.log(30.0)):
+RANDOM_FLUX_SIGMA = np.log(30.0)   # scatter of ln(flux) of unrelated features (rule of thumb)
+
+
+def _intensity_evidence(flux, strength, sigma, sigma_random=RANDOM_FLUX_SIGMA):
     """Do the matched fluxes follow the expected strengths?  ln-likelihood ratio of
     ln(flux / strength) scattering by `sigma` about a common scale, against
-    fluxes unrelated to strength (scatter `sigma_random`)."""
+    fluxes unrelated to strength (scatter `sigma_random`).  The scale is fitted,
+    so one line's normalisation term is not counted: one flux carries no evidence."""
     ok = np.isfinite(flux) & (flux > 0) & (strength > 0)
     if ok.sum() < 2:
         return 0.0
@@ -234,7 +235,7 @@ def _intensity_evidence(flux, strength, sigma, sigma_random=np.log(30.0)):
     dev = v - np.median(v)
     dev0 = v0 - np.median(v0)
     return float(np.sum(np.log(sigma_random / sigma) - 0.5 * (dev / sigma) ** 2
-                        + 0.5 * (dev0 / sigma_random) ** 2))
+                        + 0.5 * (dev0 / sigma_random) ** 2) - np.log(sigma_random / sigma))
 
 
 def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterations=3, flux=None,
@@ -288,8 +289,7 @@ def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterati
                                        fwhm_ln, group)
         score -= cost
         if flux is not None and len(fi) >= 2:
-            ie = _intensity_evidence(np.abs(flux[fi]), strength[lj], intensity_sigma)
-            score += ie - (np.log(np.log(30.0) / intensity_sigma) if ie else 0.0)
+            score += _intensity_evidence(np.abs(flux[fi]), strength[lj], intensity_sigma)
         if len(pairs) > 1:
             s_err *= max(1.0, np.sqrt(chi2 / (len(pairs) - 1)))
         sol = Solution(s=s_new, s_err=s_err, score=score,
