@@ -10,7 +10,8 @@ from linefinder.redshift import classify, search_shift
 
 
 def _dense_optimum(y, sy, x, strength, s):
-    """Brute-force reference: the full (features x lines + none) assignment problem."""
+    """Brute-force reference: the full (features x lines + none) assignment problem,
+    solved by scipy's linear_sum_assignment (source: the reference library's optimum)."""
     d = (y[:, None] - s - x[None, :]) / sy[:, None]
     ll = np.where(np.abs(d) < TOL, -0.5 * d ** 2 + np.log(np.clip(strength, 1e-4, 1))[None, :],
                   -np.inf)
@@ -52,9 +53,11 @@ def test_assignment_scores_and_alternatives():
 
 
 def _balmer_log_rest(nu):
-    # Rydberg formula with the hydrogen reduced mass (enough for a search test)
-    rinf = 10973731.568157
-    r_h = rinf / (1 + 1 / 1836.15267343)
+    # Rydberg formula with the hydrogen reduced mass (enough for a search test);
+    # source: CODATA constants via scipy.constants
+    from scipy import constants as sc
+
+    r_h = sc.Rydberg / (1 + sc.m_e / sc.m_p)
     return np.log(1.0 / (r_h * (0.25 - 1.0 / np.asarray(nu, float) ** 2)))
 
 
