@@ -21,17 +21,17 @@ import tracemalloc
 import numpy as np
 from astropy import units as u
 
-SIG_PER_FWHM = 2.3548200450309493
 
 
 def _lines_spectrum(rng, n_pix, n_lines, R, snr_range=(5, 100), absorption_fraction=0.3,
                     min_sep_fwhm=4.0):
     """A log-linear spectrum with isolated Gaussian lines of known S/N (invented)."""
+    from linefinder.profiles import GAUSS_FWHM
     from linefinder.spectrum import SpectrumData
 
     dlog = 1 / (2.5 * R)
     lam = 4000.0 * np.exp(dlog * np.arange(n_pix))
-    s_px = 2.5 / SIG_PER_FWHM
+    s_px = 2.5 / GAUSS_FWHM
     flux = np.full(n_pix, 50.0)
     truth = []
     sep = min_sep_fwhm * 2.5

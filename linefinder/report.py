@@ -7,6 +7,7 @@ from pathlib import Path
 import numpy as np
 from astropy import units as u
 
+from .doppler import C_KMS
 from .errors import OutputExistsError
 from .tables_io import json_default
 
@@ -123,7 +124,7 @@ def _plot(result, path_png, path_svg):
         for i in sel:
             c = f["center"][i]
             e = f["center_err"][i]
-            errs.append(abs(float((e / c).to_value(u.one))) * 299792.458 if np.isfinite(e.value) else 0)
+            errs.append(abs(float((e / c).to_value(u.one))) * C_KMS if np.isfinite(e.value) else 0)
         axz.errorbar(range(len(sel)), vel, yerr=errs, fmt="o", ms=3)
         axz.axhline(0, color="0.5", lw=0.8)
         axz.set_xticks(range(len(sel)))

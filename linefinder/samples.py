@@ -29,13 +29,14 @@ from astropy import units as u
 from astropy.io import fits
 
 from .catalogue import build_catalogue
+from .doppler import C_KMS
 from .medium import air_to_vacuum, vacuum_to_air
+from .profiles import GAUSS_FWHM
 
 __all__ = ["write_samples", "SAMPLES", "sample_path"]
 
 SAMPLES = ("emission_galaxy.fits", "hot_star.fits", "hd_discharge.csv", "xray_cluster.fits",
            "radio_rrl.csv")
-C_KMS = 299792.458
 
 # Non-hydrogenic rest wavelengths, vacuum Å (NIST ASD values, recalled) and night-sky lines (air Å)
 NEBULAR_VAC = {"[O II] 3727": 3727.09, "[O II] 3730": 3729.88, "[Ne III] 3870": 3870.16,
@@ -60,7 +61,7 @@ def _gauss(x, c, fwhm):
 def _voigt_norm(x, c, fwhm_g, fwhm_l):
     from scipy.special import voigt_profile
 
-    s, g = fwhm_g / 2.3548200450309493, fwhm_l / 2
+    s, g = fwhm_g / GAUSS_FWHM, fwhm_l / 2
     return voigt_profile(x - c, s, g) / voigt_profile(0.0, s, g)
 
 

@@ -20,14 +20,15 @@ from astropy import units as u
 
 from .catalogue import build_catalogue
 from .contaminants import SKY_LINES_AIR
+from .doppler import C_KMS
 from .matching import CASE_B_HBETA
 from .medium import air_to_vacuum
+from .profiles import GAUSS_FWHM
 from .spectrum import SpectrumData
 
 __all__ = ["make_spectrum", "make_noise_spectrum", "random_parameters", "OTHER_LINES_VAC",
            "WINDOW_AA"]
 
-C_KMS = 299792.458
 WINDOW_AA = (3000.0, 25000.0)
 MAX_PIXELS = 6000
 PIXELS_PER_FWHM = 2.5
@@ -94,7 +95,7 @@ def _add_contaminants(rng, lam, flux, dlog, truth, sigma):
         vac = float(air_to_vacuum(air * u.AA).to_value(u.AA))
         if lam[0] < vac < lam[-1] and rng.uniform() < 0.6:
             amp = rng.choice([-1.0, 1.0]) * rng.uniform(4, 15) * sigma
-            s_px = PIXELS_PER_FWHM / 2.3548
+            s_px = PIXELS_PER_FWHM / GAUSS_FWHM
             flux += amp * _gauss(np.log(lam), np.log(vac), s_px * dlog)
             truth["sky"].append({"name": name, "observed": vac, "amplitude": float(amp)})
     for _ in range(int(rng.integers(0, 4))):
@@ -123,7 +124,7 @@ def make_spectrum(rng, *, z, snr, resolution, kind="emission", velocity_fwhm_kms
     sigma = 1.0
     vfwhm = velocity_fwhm_kms if velocity_fwhm_kms is not None else float(rng.uniform(0, 250))
     fwhm_ln = np.hypot(1.0 / R, vfwhm / C_KMS)
-    s_ln = fwhm_ln / 2.3548200450309493
+    s_ln = fwhm_ln / GAUSS_FWHM
     s_px = s_ln / dlog
     inside = [r for r in cat if lam[0] < r["wavelength_vacuum"].to_value(u.AA) < lam[-1]]
     truth = {"z": float(z), "kind": kind, "resolution": R, "snr_peak": float(snr), "lines": [],
