@@ -104,9 +104,18 @@ def _plot(result, path_png, path_svg):
             obs = vacuum_to_air(obs)
         pos = obs.to_value(unit, equivalencies=u.spectral())
         lo, hi = ax.get_xlim()
-        pos = pos[(pos > lo) & (pos < hi)]
-        ax.plot(pos, np.full(len(pos), 0.02), "|", color="tab:green", ms=10,
-                transform=ax.get_xaxis_transform(), label=f"catalogue at z = {result.z:.5f}")
+        species = np.asarray(result.lines["species"]).astype(str)
+        main = "H I" if "H I" in set(species) else species[0]
+        inside = (pos > lo) & (pos < hi)
+        # the primary species in green; the others (He II ...) short and grey, so that their
+        # dense series do not hide the hydrogen pattern
+        for sel, color, ms, label in ((species == main, "tab:green", 10,
+                                       f"{main} catalogue at z = {result.z:.5f}"),
+                                      (species != main, "0.6", 5, "other species")):
+            p_ = pos[inside & sel]
+            if len(p_):
+                ax.plot(p_, np.full(len(p_), 0.02), "|", color=color, ms=ms,
+                        transform=ax.get_xaxis_transform(), label=label)
     medium = result.meta.get("medium")
     axis_name = "wavelength" if unit.is_equivalent(u.m) else "frequency" if unit.is_equivalent(u.Hz) \
         else "energy"
