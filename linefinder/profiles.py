@@ -1,8 +1,9 @@
 """Profile fits of one feature or a blended group: Gaussians, Voigt where the wings demand.
 
 Model over a window of pixels: sum of components plus a linear term that
-absorbs a small continuum error.  Fitted with scipy.optimize.least_squares
-on residuals divided by the 1-sigma noise; the covariance is (J^T J)^-1,
+absorbs a small continuum error, fitted on residuals divided by the 1-sigma
+noise: Gaussians by a Levenberg-Marquardt solver that works on many groups
+at once, Voigt refits by scipy.optimize.least_squares; the covariance is (J^T J)^-1,
 scaled up by the reduced chi^2 when that exceeds 1 (the noise or the
 profile is then worse than assumed, and the errors say so).
 
@@ -11,21 +12,15 @@ Voigt: flux V(x - mu; s, g) with scipy.special.voigt_profile, FWHM from
 Olivero & Longbothum 1977 (0.5346 fL + sqrt(0.2166 fL^2 + fG^2)).
 """
 
+from dataclasses import dataclass
+
 import numpy as np
 from scipy.optimize import least_squares
 from scipy.special import voigt_profile
 
-__all__ = ["fit_group", "GAUSS_FWHM"]
+__all__ = ["fit_group", "fit_groups", "GroupProblem", "GAUSS_FWHM"]
 
 GAUSS_FWHM = 2.0 * np.sqrt(2.0 * np.log(2.0))
-
-
-def _gauss(x, p, ncomp):
-    out = p[3 * ncomp] + p[3 * ncomp + 1] * x
-    for k in range(ncomp):
-        a, mu, s = p[3 * k:3 * k + 3]
-        out = out + a * np.exp(-0.5 * ((x - mu) / s) ** 2)
-    return out
 
 
 def _covariance(res, n_par, J=None):
@@ -46,85 +41,211 @@ def _covariance(res, n_par, J=None):
     return cov * max(red, 1.0), red
 
 
+@dataclass
+class GroupProblem:
+    """One window of continuum-subtracted data r(x) and the first guesses of its components.
+
+    Positions and widths are in axis units; `widths` are Gaussian sigmas."""
+    x: np.ndarray
+    r: np.ndarray
+    sigma: np.ndarray
+    centers: list
+    widths: list
+    amplitudes: list
+    min_sigma: float
+
+
 def fit_group(x, r, sigma, centers, widths, amplitudes, *, min_sigma, try_voigt=True):
-    """Fit components to continuum-subtracted data r(x).
+    """Fit components to continuum-subtracted data r(x) (one group; see `fit_groups`)."""
+    return fit_groups([GroupProblem(x, r, sigma, list(centers), list(widths), list(amplitudes),
+                                    min_sigma)], try_voigt=try_voigt)[0]
 
-    Parameters are in axis units; `widths` are initial Gaussian sigmas.
-    Returns a list of dicts, one per component, with center, center_err,
-    fwhm, fwhm_err, amplitude, amplitude_err, flux, flux_err, profile,
-    chi2_red, ok.
+
+def fit_groups(problems, *, try_voigt=True):
+    """Joint Gaussian fits of many groups at once; Voigt refits where the wings demand.
+
+    Returns, per problem, a list of dicts, one per component, with center,
+    center_err, fwhm, fwhm_err, amplitude, amplitude_err, flux, flux_err,
+    profile, chi2_red, ok, at_bound.
+
+    Groups of similar size are stacked into padded arrays and solved together
+    by Levenberg-Marquardt (`_lm_batch`), so the cost of thousands of small
+    fits is a few dozen array operations rather than thousands of solver calls.
     """
-    ncomp = len(centers)
-    x0 = float(np.mean(x))
-    xs = x - x0
-    inv = 1.0 / sigma
-    # sigma_k = sqrt(min_sigma^2 + t_k^2) keeps every width above min_sigma without bounds, so
-    # the fast Levenberg-Marquardt solver (MINPACK) applies; centres are checked afterwards
-    q0 = []
-    for c, s, a in zip(centers, widths, amplitudes):
-        s = max(float(s), min_sigma * 1.05)
-        q0 += [float(a), float(c) - x0, np.sqrt(s * s - min_sigma * min_sigma)]
-    q0 += [0.0, 0.0]
-    q0 = np.asarray(q0)
-    m2 = min_sigma * min_sigma
-
-    def to_p(q):
-        p = q.copy()
-        p[2:3 * ncomp:3] = np.sqrt(m2 + q[2:3 * ncomp:3] ** 2)
-        return p
-
-    def fun(q):
-        return (_gauss(xs, to_p(q), ncomp) - r) * inv
-
-    def jac_p(p):
-        J = np.empty((len(xs), len(p)))
-        for k in range(ncomp):
-            a, mu, s = p[3 * k:3 * k + 3]
-            d = (xs - mu) / s
-            e = np.exp(-0.5 * d * d)
-            J[:, 3 * k] = e
-            J[:, 3 * k + 1] = a * e * d / s
-            J[:, 3 * k + 2] = a * e * d * d / s
-        J[:, 3 * ncomp] = 1.0
-        J[:, 3 * ncomp + 1] = xs
-        return J * inv[:, None]
-
-    def jac(q):
-        p = to_p(q)
-        J = jac_p(p)
-        J[:, 2:3 * ncomp:3] *= q[2:3 * ncomp:3] / p[2:3 * ncomp:3]
-        return J
-
-    if len(xs) <= len(q0):
-        return [_failed(c) for c in centers]
-    try:
-        res = least_squares(fun, q0, jac=jac, method="lm", x_scale="jac", max_nfev=50 * len(q0),
-                            ftol=1e-8, xtol=1e-8)
-    except (ValueError, np.linalg.LinAlgError):
-        return [_failed(c) for c in centers]
-    p_fit = to_p(res.x)
-    res.x = p_fit
-    inside = np.all((p_fit[1:3 * ncomp:3] >= xs[0]) & (p_fit[1:3 * ncomp:3] <= xs[-1]))
-    res.success = bool(res.success and inside and np.all(np.isfinite(p_fit)))
-    cov, red = _covariance(res, len(q0), J=jac_p(p_fit))
-    out = []
-    for k in range(ncomp):
-        a, mu, s = res.x[3 * k:3 * k + 3]
-        c = cov[3 * k:3 * k + 3, 3 * k:3 * k + 3]
-        flux = a * s * np.sqrt(2 * np.pi)
-        grad = np.array([s, 0.0, a]) * np.sqrt(2 * np.pi)
-        out.append({"center": mu + x0, "center_err": np.sqrt(c[1, 1]), "fwhm": GAUSS_FWHM * s,
-                    "fwhm_err": GAUSS_FWHM * np.sqrt(c[2, 2]), "amplitude": a,
-                    "amplitude_err": np.sqrt(c[0, 0]), "flux": flux,
-                    "flux_err": np.sqrt(max(grad @ c @ grad, 0.0)), "profile": "gaussian",
-                    "chi2_red": red, "ok": bool(res.success),
-                    "at_bound": bool(s < min_sigma * (1 + 1e-3))})
-    strong = any(abs(o["flux"]) > 20 * o["flux_err"] for o in out if np.isfinite(o["flux_err"]))
-    if try_voigt and red > 2.0 and strong:
-        v = _fit_voigt(xs, r, inv, res.x, ncomp, min_sigma, x0, red, len(r))
-        if v is not None:
-            out = v
+    out = [None] * len(problems)
+    background = [None] * len(problems)
+    buckets = {}
+    for k, pr in enumerate(problems):
+        ncomp = len(pr.centers)
+        if len(pr.x) <= 3 * ncomp + 2:
+            out[k] = [_failed(c) for c in pr.centers]
+            continue
+        size = 1 << int(np.ceil(np.log2(len(pr.x))))
+        buckets.setdefault((ncomp, size), []).append(k)
+    for (ncomp, size), ks in buckets.items():
+        comps, bg = _gauss_bucket([problems[k] for k in ks], ncomp, size)
+        for j, k in enumerate(ks):
+            out[k], background[k] = comps[j], bg[j]
+    if try_voigt:
+        for k, comps in enumerate(out):
+            strong = any(abs(o["flux"]) > 20 * o["flux_err"] for o in comps
+                         if np.isfinite(o["flux_err"]))
+            if background[k] is not None and comps[0]["chi2_red"] > 2.0 and strong:
+                v = _fit_voigt(problems[k], comps, background[k])
+                if v is not None:
+                    out[k] = v
     return out
+
+
+def _gauss_bucket(probs, ncomp, size):
+    """Fit a stack of groups with `ncomp` Gaussians each and at most `size` pixels."""
+    G, P = len(probs), 3 * ncomp + 2
+    xs = np.zeros((G, size))
+    r = np.zeros((G, size))
+    inv = np.zeros((G, size))            # 0 on padding: padded pixels carry no weight
+    x0 = np.empty(G)
+    m2 = np.empty(G)
+    q0 = np.zeros((G, P))
+    lo = np.empty(G)
+    hi = np.empty(G)
+    for g, pr in enumerate(probs):
+        n = len(pr.x)
+        x0[g] = float(np.mean(pr.x))
+        xs[g, :n] = pr.x - x0[g]
+        xs[g, n:] = xs[g, n - 1]
+        r[g, :n] = pr.r
+        inv[g, :n] = 1.0 / pr.sigma
+        lo[g], hi[g] = xs[g, 0], xs[g, n - 1]
+        m2[g] = pr.min_sigma ** 2
+        for k, (c, s_, a) in enumerate(zip(pr.centers, pr.widths, pr.amplitudes)):
+            s_ = max(float(s_), pr.min_sigma * 1.05)
+            q0[g, 3 * k:3 * k + 3] = [float(a), float(c) - x0[g], np.sqrt(s_ * s_ - m2[g])]
+    q, ok = _lm_batch(xs, r, inv, q0, m2, ncomp)
+    p = _to_p(q, m2, ncomp)
+    f, J = _gauss_fj(xs, r, inv, p, ncomp)
+    npix = (inv > 0).sum(axis=1)
+    chi2 = np.sum(f * f, axis=1)
+    red = chi2 / np.maximum(npix - P, 1)
+    cov = _batch_covariance(J) * np.maximum(red, 1.0)[:, None, None]
+    centres = p[:, 1:3 * ncomp:3]
+    ok &= np.all((centres >= lo[:, None]) & (centres <= hi[:, None]), axis=1)
+    ok &= np.all(np.isfinite(p), axis=1)
+    out = []
+    for g in range(G):
+        comps = []
+        for k in range(ncomp):
+            a, mu, s_ = p[g, 3 * k:3 * k + 3]
+            c = cov[g, 3 * k:3 * k + 3, 3 * k:3 * k + 3]
+            flux = a * s_ * np.sqrt(2 * np.pi)
+            grad = np.array([s_, 0.0, a]) * np.sqrt(2 * np.pi)
+            comps.append({"center": mu + x0[g], "center_err": np.sqrt(c[1, 1]),
+                          "fwhm": GAUSS_FWHM * s_, "fwhm_err": GAUSS_FWHM * np.sqrt(c[2, 2]),
+                          "amplitude": a, "amplitude_err": np.sqrt(c[0, 0]), "flux": flux,
+                          "flux_err": np.sqrt(max(grad @ c @ grad, 0.0)), "profile": "gaussian",
+                          "chi2_red": float(red[g]), "ok": bool(ok[g]),
+                          "at_bound": bool(s_ * s_ < m2[g] * (1 + 1e-3) ** 2)})
+        out.append(comps)
+    return out, p[:, 3 * ncomp:]
+
+
+def _to_p(q, m2, ncomp):
+    """Widths sigma_k = sqrt(min_sigma^2 + t_k^2): above min_sigma without bounds."""
+    p = q.copy()
+    p[:, 2:3 * ncomp:3] = np.sqrt(m2[:, None] + q[:, 2:3 * ncomp:3] ** 2)
+    return p
+
+
+def _gauss_fj(xs, r, inv, p, ncomp):
+    """Normalised residuals (G, N) and their Jacobian (G, N, P) in the natural parameters."""
+    G, N = xs.shape
+    J = np.empty((G, N, 3 * ncomp + 2))
+    model = p[:, 3 * ncomp, None] + p[:, 3 * ncomp + 1, None] * xs
+    for k in range(ncomp):
+        a, mu, s_ = (p[:, 3 * k + j, None] for j in range(3))
+        d = (xs - mu) / s_
+        e = np.exp(-0.5 * d * d)
+        model = model + a * e
+        J[:, :, 3 * k] = e
+        J[:, :, 3 * k + 1] = a * e * d / s_
+        J[:, :, 3 * k + 2] = a * e * d * d / s_
+    J[:, :, 3 * ncomp] = 1.0
+    J[:, :, 3 * ncomp + 1] = xs
+    return (model - r) * inv, J * inv[:, :, None]
+
+
+def _lm_batch(xs, r, inv, q0, m2, ncomp, max_iter=200, tol=1e-10):
+    """Levenberg-Marquardt on a stack of independent least-squares problems.
+
+    Each problem keeps its own damping (Marquardt's diag(J^T J) scaling, the
+    usual choice that makes steps invariant to parameter units), accepts a
+    step only where it lowers chi^2, and stops once chi^2 changes by less than
+    `tol` relative over a step that was accepted; returns (q, converged).
+    """
+    G, P = q0.shape
+    q = q0.copy()
+    lam = np.full(G, 1e-3)
+    active = np.ones(G, dtype=bool)
+    conv = np.zeros(G, dtype=bool)
+    wcols = slice(2, 3 * ncomp, 3)
+
+    def fj(qq, idx):
+        p = _to_p(qq, m2[idx], ncomp)
+        f, J = _gauss_fj(xs[idx], r[idx], inv[idx], p, ncomp)
+        J[:, :, wcols] *= (qq[:, wcols] / p[:, wcols])[:, None, :]
+        return f, J
+
+    f, J = fj(q, np.arange(G))
+    cost = np.sum(f * f, axis=1)
+    JtJ = np.einsum("gni,gnj->gij", J, J)
+    Jtf = np.einsum("gni,gn->gi", J, f)
+    eye = np.eye(P)
+    for _ in range(max_iter):
+        idx = np.flatnonzero(active)
+        if not len(idx):
+            break
+        A = JtJ[idx]
+        d = np.einsum("gii->gi", A)
+        scale = np.maximum(d, 1e-30 * np.maximum(d.max(axis=1, keepdims=True), 1e-300))
+        M = A + lam[idx, None, None] * scale[:, :, None] * eye
+        try:
+            step = -np.linalg.solve(M, Jtf[idx][:, :, None])[:, :, 0]
+        except np.linalg.LinAlgError:
+            step = np.stack([-np.linalg.lstsq(Mi, gi, rcond=None)[0] for Mi, gi in zip(M, Jtf[idx])])
+        trial = q[idx] + step
+        f_new, J_new = fj(trial, idx)
+        c_new = np.sum(f_new * f_new, axis=1)
+        better = np.isfinite(c_new) & (c_new <= cost[idx])
+        rel = (cost[idx] - c_new) / np.maximum(cost[idx], 1e-300)
+        small_step = np.all(np.abs(step) <= 1e-8 * (np.abs(q[idx]) + 1e-8), axis=1)
+        acc = idx[better]
+        q[acc] = trial[better]
+        cost[acc] = c_new[better]
+        JtJ[acc] = np.einsum("gni,gnj->gij", J_new[better], J_new[better])
+        Jtf[acc] = np.einsum("gni,gn->gi", J_new[better], f_new[better])
+        lam[acc] = np.maximum(lam[acc] / 3.0, 1e-12)
+        rej = idx[~better]
+        lam[rej] = lam[rej] * 4.0
+        done = (better & (rel < tol)) | small_step
+        conv[idx[done]] = True
+        active[idx[done]] = False
+        active[idx[~better][lam[rej] > 1e12]] = False      # no step helps: stuck
+    return q, conv
+
+
+def _batch_covariance(J):
+    """(J^T J)^-1 from the SVD of each Jacobian, NaN where it is rank deficient."""
+    G, N, P = J.shape
+    cov = np.full((G, P, P), np.nan)
+    try:
+        _, sv, vt = np.linalg.svd(J, full_matrices=False)
+    except np.linalg.LinAlgError:
+        return cov
+    thresh = np.finfo(float).eps * max(N, P) * sv[:, :1]
+    full = np.all(sv > thresh, axis=1)
+    inv2 = np.where(sv > thresh, 1.0 / np.where(sv > 0, sv, 1.0) ** 2, 0.0)
+    c = np.einsum("gki,gk,gkj->gij", vt, inv2, vt)
+    cov[full] = c[full]
+    return cov
 
 
 def _voigt_sum(xs, p, ncomp):
@@ -135,15 +256,19 @@ def _voigt_sum(xs, p, ncomp):
     return out
 
 
-def _fit_voigt(xs, r, inv, pg, ncomp, min_sigma, x0, red_gauss, npix):
+def _fit_voigt(pr, gauss, bg):
     """Refit a group with Voigt components; kept only if the BIC says the wings need it."""
+    ncomp, min_sigma = len(gauss), pr.min_sigma
+    x0 = float(np.mean(pr.x))
+    xs, r, inv, npix = pr.x - x0, pr.r, 1.0 / pr.sigma, len(pr.x)
+    red_gauss = gauss[0]["chi2_red"]
     p0, lo, hi = [], [], []
-    for k in range(ncomp):
-        a, mu, s = pg[3 * k:3 * k + 3]
+    for o in gauss:
+        a, mu, s = o["amplitude"], o["center"] - x0, o["fwhm"] / GAUSS_FWHM
         p0 += [a * s * np.sqrt(2 * np.pi), mu, max(s * 0.7, min_sigma * 1.01), s * 0.5]
         lo += [-np.inf, xs[0], min_sigma, 0.0]
         hi += [np.inf, xs[-1], np.inf, np.inf]
-    p0 += list(pg[3 * ncomp:3 * ncomp + 2])
+    p0 += list(bg)
     lo += [-np.inf, -np.inf]
     hi += [np.inf, np.inf]
 
