@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy.optimize import least_squares
-from scipy.special import voigt_profile
+from scipy.special import voigt_profile, wofz
 
 __all__ = ["fit_group", "fit_groups", "GroupProblem", "GAUSS_FWHM"]
 
@@ -90,7 +90,9 @@ def fit_groups(problems, *, try_voigt=True):
         for k, comps in enumerate(out):
             strong = any(abs(o["flux"]) > 20 * o["flux_err"] for o in comps
                          if np.isfinite(o["flux_err"]))
-            if background[k] is not None and comps[0]["chi2_red"] > 2.0 and strong:
+            # only where the Gaussians converged: a failed fit is no start for a harder one
+            if background[k] is not None and comps[0]["ok"] and comps[0]["chi2_red"] > 2.0 \
+                    and strong:
                 v = _fit_voigt(problems[k], comps, background[k])
                 if v is not None:
                     out[k] = v
@@ -173,13 +175,13 @@ def _gauss_fj(xs, r, inv, p, ncomp):
     return (model - r) * inv, J * inv[:, :, None]
 
 
-def _lm_batch(xs, r, inv, q0, m2, ncomp, max_iter=200, tol=1e-10):
+def _lm_batch(xs, r, inv, q0, m2, ncomp, max_iter=200, ftol=1e-8, xtol=1e-8):
     """Levenberg-Marquardt on a stack of independent least-squares problems.
 
     Each problem keeps its own damping (Marquardt's diag(J^T J) scaling, the
     usual choice that makes steps invariant to parameter units), accepts a
-    step only where it lowers chi^2, and stops once chi^2 changes by less than
-    `tol` relative over a step that was accepted; returns (q, converged).
+    step only where it lowers chi^2, and stops by MINPACK's ftol/xtol rules;
+    returns (q, converged).
     """
     G, P = q0.shape
     q = q0.copy()
@@ -215,8 +217,15 @@ def _lm_batch(xs, r, inv, q0, m2, ncomp, max_iter=200, tol=1e-10):
         f_new, J_new = fj(trial, idx)
         c_new = np.sum(f_new * f_new, axis=1)
         better = np.isfinite(c_new) & (c_new <= cost[idx])
-        rel = (cost[idx] - c_new) / np.maximum(cost[idx], 1e-300)
-        small_step = np.all(np.abs(step) <= 1e-8 * (np.abs(q[idx]) + 1e-8), axis=1)
+        # MINPACK's tests: actual and predicted relative reductions of chi^2 both at most
+        # ftol, or a step that is small against the parameters (in the Jacobian's scaling)
+        c_old = np.maximum(cost[idx], 1e-300)
+        rel = np.where(better, (cost[idx] - c_new) / c_old, 0.0)
+        pred = -(2.0 * np.einsum("gi,gi->g", step, Jtf[idx]) +
+                 np.einsum("gi,gij,gj->g", step, A, step)) / c_old
+        dn = np.sqrt(d)
+        small_step = np.linalg.norm(dn * step, axis=1) <= xtol * (np.linalg.norm(dn * q[idx], axis=1)
+                                                                    + xtol)
         acc = idx[better]
         q[acc] = trial[better]
         cost[acc] = c_new[better]
@@ -225,7 +234,7 @@ def _lm_batch(xs, r, inv, q0, m2, ncomp, max_iter=200, tol=1e-10):
         lam[acc] = np.maximum(lam[acc] / 3.0, 1e-12)
         rej = idx[~better]
         lam[rej] = lam[rej] * 4.0
-        done = (better & (rel < tol)) | small_step
+        done = ((rel <= ftol) & (np.abs(pred) <= ftol)) | small_step
         conv[idx[done]] = True
         active[idx[done]] = False
         active[idx[~better][lam[rej] > 1e12]] = False      # no step helps: stuck
@@ -242,7 +251,8 @@ def _batch_covariance(J):
         return cov
     thresh = np.finfo(float).eps * max(N, P) * sv[:, :1]
     full = np.all(sv > thresh, axis=1)
-    inv2 = np.where(sv > thresh, 1.0 / np.where(sv > 0, sv, 1.0) ** 2, 0.0)
+    with np.errstate(divide="ignore", over="ignore"):
+        inv2 = np.where(sv > thresh, 1.0 / np.where(sv > thresh, sv, 1.0) ** 2, 0.0)
     c = np.einsum("gki,gk,gkj->gij", vt, inv2, vt)
     cov[full] = c[full]
     return cov
@@ -254,6 +264,28 @@ def _voigt_sum(xs, p, ncomp):
         f, mu, s, g = p[4 * k:4 * k + 4]
         out = out + f * voigt_profile(xs - mu, s, g)
     return out
+
+
+def _voigt_jac(xs, p, ncomp):
+    """Analytic Jacobian of `_voigt_sum` from the Faddeeva function w(z).
+
+    V = Re w(z) / (s sqrt(2 pi)) with z = (x - mu + i g) / (s sqrt 2), and
+    w'(z) = -2 z w(z) + 2i / sqrt(pi) (Abramowitz & Stegun 7.1.20)."""
+    J = np.empty((len(xs), len(p)))
+    for k in range(ncomp):
+        f, mu, s, g = p[4 * k:4 * k + 4]
+        z = (xs - mu + 1j * g) / (s * np.sqrt(2.0))
+        w = wofz(z)
+        dw = -2.0 * z * w + 2.0j / np.sqrt(np.pi)
+        norm = 1.0 / (s * np.sqrt(2.0 * np.pi))
+        v = w.real * norm
+        J[:, 4 * k] = v
+        J[:, 4 * k + 1] = -f * dw.real * norm / (s * np.sqrt(2.0))
+        J[:, 4 * k + 2] = f * ((dw * (-z / s)).real * norm - v / s)
+        J[:, 4 * k + 3] = -f * dw.imag * norm / (s * np.sqrt(2.0))
+    J[:, 4 * ncomp] = 1.0
+    J[:, 4 * ncomp + 1] = xs
+    return J
 
 
 def _fit_voigt(pr, gauss, bg):
@@ -275,9 +307,12 @@ def _fit_voigt(pr, gauss, bg):
     def fun(p):
         return (_voigt_sum(xs, p, ncomp) - r) * inv
 
+    def jac(p):
+        return _voigt_jac(xs, p, ncomp) * inv[:, None]
+
     try:
-        res = least_squares(fun, np.clip(p0, lo, hi), bounds=(lo, hi), x_scale="jac",
-                            max_nfev=400 * len(p0))
+        res = least_squares(fun, np.clip(p0, lo, hi), jac=jac, bounds=(lo, hi), x_scale="jac",
+                            max_nfev=100 * len(p0))
     except (ValueError, np.linalg.LinAlgError):
         return None
     chi2_v = float(np.sum(res.fun ** 2))
