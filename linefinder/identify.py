@@ -261,7 +261,8 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
         rr = np.abs(u.Quantity(feats["center"]).value / fw)
         R = float(np.nanmedian(rr)) if np.any(np.isfinite(rr)) else 2000.0
     R = R or 2000.0
-    sy = np.sqrt(np.nan_to_num(rel, nan=1.0 / R) ** 2 + calibration ** 2 + (resolution_fraction / R) ** 2)
+    sy_meas = np.nan_to_num(rel, nan=1.0 / R)
+    sy = np.sqrt(sy_meas ** 2 + calibration ** 2 + (resolution_fraction / R) ** 2)
     is_freq_axis = len(feats) > 0 and not u.Quantity(feats["center"]).unit.is_equivalent(u.m)
     if len(feats):
         sky = sky_mask(feats["center"], feats["center_err"], feats["fwhm"], medium=medium) \
@@ -314,7 +315,8 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
         sols = search_shift(y[use], sy[use], w[use], x, strength, smin=s_lo, smax=s_hi,
                             anchors=anchors if len(anchors) else None, window=window,
                             flux=flux_abs[use], intensity_sigma=isig, fwhm_ln=1.0 / R,
-                            group=group_codes, line_weight=line_weight)
+                            group=group_codes, line_weight=line_weight, sy_fit=sy_meas[use],
+                            s_floor=calibration)
         sols = [_reindex(s, np.flatnonzero(use)) for s in sols]
     else:
         sol = refine(np.log1p(z), y[use], sy[use], w[use], x, strength, np.ones(len(x), bool),
@@ -356,7 +358,8 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
             more = search_shift(y[rest], sy[rest], w[rest], x, strength, smin=s_lo, smax=s_hi,
                                 anchors=anchors if len(anchors) else None, n_solutions=3,
                                 window=window, flux=flux_abs[rest], intensity_sigma=isig,
-                                fwhm_ln=1.0 / R, group=group_codes, line_weight=line_weight)
+                                fwhm_ln=1.0 / R, group=group_codes, line_weight=line_weight,
+                                sy_fit=sy_meas[rest], s_floor=calibration)
             more = [_reindex(s, rest) for s in more]
             # a second system must stand on its own: secure by the same rules, 4 lines or more,
             # and not the first one again

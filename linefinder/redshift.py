@@ -15,8 +15,9 @@ share of features that line j explains (f = 0.5).  Crowded stretches of the
 catalogue (series limits) thus carry less evidence per match than isolated
 strong lines.  The best single term is not counted (a shift fitted to one
 line always explains that line).  The best distinct trial shifts are refined
-by weighted least squares on their matched lines, giving z with its 1-sigma
-error and chi^2; the refined score adds whether the matched fluxes follow the
+by weighted least squares on their matched lines (measurement errors, with
+the extra scatter between lines estimated, `weighted_shift`), giving z with
+its 1-sigma error and chi^2; the refined score adds whether the matched fluxes follow the
 expected strengths (`_intensity_evidence`) and subtracts the lines of a
 matched series expected above the detection limit but absent
 (`_missing_lines`).  The evidence against the others is the difference of
@@ -39,7 +40,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["Solution", "search_shift", "refine", "classify"]
+__all__ = ["Solution", "search_shift", "refine", "classify", "weighted_shift"]
 
 
 @dataclass
@@ -114,7 +115,8 @@ def _score(s_values, y, sy, x, strength, kinds_ok, window, tol):
 
 def search_shift(y, sy, w, x, strength, *, smin, smax, kinds_ok=None, tol=3.0, n_solutions=5,
                  anchors=None, window=None, flux=None,
-                 intensity_sigma=np.log(3.0), fwhm_ln=0.0, group=None, line_weight=None):
+                 intensity_sigma=np.log(3.0), fwhm_ln=0.0, group=None, line_weight=None,
+                 sy_fit=None, s_floor=0.0):
     """The best distinct shifts s = ln(1+z) in [smin, smax], best first.
 
     `window` is the observed range (ln lambda) where features could have been
@@ -148,12 +150,13 @@ def search_shift(y, sy, w, x, strength, *, smin, smax, kinds_ok=None, tol=3.0, n
             break
     sols = [refine(c, y, sy, w, x, strength, kinds_ok, tol=tol, window=window, flux=flux,
                    intensity_sigma=intensity_sigma, fwhm_ln=fwhm_ln, group=group,
-                   line_weight=line_weight) for c, _ in chosen]
+                   line_weight=line_weight, sy_fit=sy_fit, s_floor=s_floor) for c, _ in chosen]
     sols = [s for s in sols if s.n_lines > 0]
     # refinement can bring two trial shifts onto one solution: keep the better
     unique = []
     for s in sorted(sols, key=lambda s: -s.score):
-        if all(abs(s.s - u.s) > 3 * max(s.s_err, u.s_err, 1e-12) for u in unique):
+        if all(abs(s.s - u.s) > max(3 * s.s_err, 3 * u.s_err, float(np.median(sy)))
+               for u in unique):
             unique.append(s)
     return unique[:n_solutions]
 
@@ -238,9 +241,45 @@ def _intensity_evidence(flux, strength, sigma, sigma_random=RANDOM_FLUX_SIGMA):
                         + 0.5 * (dev0 / sigma_random) ** 2) - np.log(sigma_random / sigma))
 
 
+def weighted_shift(d, sigma):
+    """Common shift of offsets d_i = y_i - x_i with 1-sigma errors sigma_i; (s, s_err, tau).
+
+    Inverse-variance weights 1 / (sigma_i^2 + tau^2), where tau is the scatter
+    between lines beyond their measured errors (blends, profile asymmetries),
+    estimated by the Paule & Mandel (1982) iteration that brings chi^2 to its
+    expected value n - 1 (recalled from memory; the usual consensus-value
+    estimator).  Lines that agree within their errors give tau = 0 and the
+    optimal weights; discordant ones flatten the weights instead of letting
+    one over-precise line dictate s, and s_err grows accordingly.
+    """
+    d = np.asarray(d, dtype=float)
+    v = np.asarray(sigma, dtype=float) ** 2
+    n = len(d)
+    tau2 = 0.0
+    for _ in range(50):
+        wt = 1.0 / (v + tau2)
+        s = float(np.sum(wt * d) / np.sum(wt))
+        if n < 2:
+            break
+        r2 = (d - s) ** 2
+        excess = float(np.sum(wt * r2)) - (n - 1)
+        if excess <= 1e-6 * (n - 1) and (tau2 == 0.0 or abs(excess) <= 1e-6 * (n - 1)):
+            break
+        tau2 = max(tau2 + excess / float(np.sum(wt * wt * r2)), 0.0)
+    return s, float(1.0 / np.sqrt(np.sum(wt))), float(np.sqrt(tau2))
+
+
 def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterations=3, flux=None,
-           intensity_sigma=np.log(3.0), fwhm_ln=0.0, group=None, line_weight=None):
+           intensity_sigma=np.log(3.0), fwhm_ln=0.0, group=None, line_weight=None, sy_fit=None,
+           s_floor=0.0):
     """Weighted least squares on the lines matched at s0 (one line per feature and vice versa).
+
+    Lines are matched and scored with the combined position errors `sy`; the
+    shift itself is fitted (`weighted_shift`) with the measurement errors
+    `sy_fit` alone (default `sy`): the calibration and resolution terms of
+    `sy` are tolerances of the match, not independent errors of each line.
+    `s_floor` (a common calibration zero-point error) is added in quadrature
+    to the error of the shift.
 
     With `flux`, the score adds `_intensity_evidence` of the matched lines
     (beyond the first: one flux only sets the scale).  `line_weight` scales
@@ -268,9 +307,8 @@ def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterati
             return sol
         fi = np.array([p[0] for p in pairs])
         lj = np.array([p[1] for p in pairs])
-        wt = 1 / sy[fi] ** 2
-        s_new = float(np.sum(wt * (y[fi] - x[lj])) / np.sum(wt))
-        s_err = float(1 / np.sqrt(np.sum(wt)))
+        s_new, s_err, _ = weighted_shift(y[fi] - x[lj], (sy if sy_fit is None else sy_fit)[fi])
+        s_err = float(np.hypot(s_err, s_floor))
         resid = (y[fi] - s_new - x[lj]) / sy[fi]
         chi2 = float(np.sum(resid ** 2))
         if window is not None:
@@ -290,8 +328,6 @@ def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterati
         score -= cost
         if flux is not None and len(fi) >= 2:
             score += _intensity_evidence(np.abs(flux[fi]), strength[lj], intensity_sigma)
-        if len(pairs) > 1:
-            s_err *= max(1.0, np.sqrt(chi2 / (len(pairs) - 1)))
         sol = Solution(s=s_new, s_err=s_err, score=score,
                        matches=[(int(i), int(j), float(r)) for i, j, r in zip(fi, lj, resid)],
                        chi2=chi2, missing=missing)

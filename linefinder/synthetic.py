@@ -12,7 +12,9 @@ digits shown).
 ``snr`` in the truth is its matched-filter S/N, A/sigma * sqrt(sqrt(pi) s)
 for a Gaussian of peak A and width s pixels on white noise sigma; ``crb``
 is the Cramér-Rao bound of its centre in ln(lambda),
-dlog * sigma/A * sqrt(2 s / sqrt(pi)).
+dlog * sigma/A * sqrt(2 s / sqrt(pi)), as if it were alone; the truth's
+``crb_shift`` is the bound of ln(1+z) for the whole spectrum, overlaps
+included (`_crb_shift`).
 """
 
 import numpy as np
@@ -167,19 +169,61 @@ def make_spectrum(rng, *, z, snr, resolution, kind="emission", velocity_fwhm_kms
                                "n_lower": int(r["n_lower"]), "n_upper": int(r["n_upper"]),
                                "observed": float(np.exp(c)), "snr": float(a / sigma * norm),
                                "crb": float(dlog * sigma / a * np.sqrt(2 * s_px / np.sqrt(np.pi))),
-                               "fwhm_ln": float(fwhm_ln), "kind": kind})
+                               "fwhm_ln": float(fwhm_ln), "kind": kind,
+                               "amplitude": float(sign * a)})
     for name, obs, st in others:
         a = amp_unit * st
         flux += a * _gauss(x, np.log(obs), s_ln)
-        truth["other"].append({"name": name, "observed": obs, "snr": float(a / sigma * norm)})
+        truth["other"].append({"name": name, "observed": obs, "snr": float(a / sigma * norm),
+                               "amplitude": float(a)})
     if contaminants:
         _add_contaminants(rng, lam, flux, dlog, truth, sigma)
+    truth["crb_shift"] = _crb_shift(x, truth, s_ln, sigma)
     flux = flux + rng.normal(0.0, sigma, len(lam))
     spec = SpectrumData(axis=lam * u.AA, flux=flux * u.dimensionless_unscaled,
                         uncertainty=np.full(len(lam), sigma) * u.dimensionless_unscaled,
                         meta={"source": "synthetic", "medium": "vacuum", "medium_source": "synthetic",
                               "resolution": R})
     return spec, truth
+
+
+def _crb_shift(x, truth, s_ln, sigma):
+    """Cramér-Rao bound of the common shift ln(1+z) for this spectrum's own model.
+
+    Parameters: the shift shared by the hydrogen lines, and per line a free
+    amplitude and width; the other lines and sky residuals with free
+    amplitude, centre and width; a linear continuum term.  The bound is
+    sqrt((F^-1)_ss) of the Fisher matrix F = J^T J / sigma^2 (white noise).
+    Unlike the inverse-variance sum of the isolated-line bounds, it counts
+    what overlapping lines cost: the bound a line-by-line fit can reach.
+    """
+    cols = []
+    ds = np.zeros_like(x)
+    for line in truth["lines"]:
+        c, a = np.log(line["observed"]), line["amplitude"]
+        g = _gauss(x, c, s_ln)
+        ds += a * g * (x - c) / s_ln ** 2
+        cols += [g, a * g * (x - c) ** 2 / s_ln ** 3]
+    others = [(np.log(o["observed"]), o["amplitude"]) for o in truth["other"]]
+    s_sky = PIXELS_PER_FWHM / GAUSS_FWHM * (x[1] - x[0])
+    others += [(np.log(o["observed"]), o["amplitude"]) for o in truth["sky"]]
+    for k, (c, a) in enumerate(others):
+        w = s_ln if k < len(truth["other"]) else s_sky
+        g = _gauss(x, c, w)
+        cols += [g, a * g * (x - c) / w ** 2, a * g * (x - c) ** 2 / w ** 3]
+    cols += [np.ones_like(x), x - x.mean()]
+    J = np.column_stack([ds] + cols) / sigma
+    keep = np.any(J != 0, axis=0)
+    keep[0] = True
+    J = J[:, keep]
+    scale = np.linalg.norm(J, axis=0)
+    scale[scale == 0] = 1.0
+    F = (J / scale).T @ (J / scale)
+    try:
+        cov = np.linalg.pinv(F, rcond=1e-12, hermitian=True)
+    except np.linalg.LinAlgError:
+        return float("nan")
+    return float(np.sqrt(max(cov[0, 0], 0.0)) / scale[0])
 
 
 def make_noise_spectrum(rng, *, resolution, contaminants=True):
