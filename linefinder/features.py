@@ -40,6 +40,7 @@ EQW_CONVENTION = "W = integral of (1 - F/Fc): positive for absorption, negative 
 SCALES = (1, 2, 4, 8, 16, 32, 64)
 DEFAULT_FWHM_PX = 3.0
 MAX_GROUP = 6
+GROUP_SEP = 2.5      # features closer than this many FWHM are fitted jointly
 
 
 @dataclass
@@ -171,7 +172,7 @@ def _groups(feats):
     groups = []
     for f in feats:
         if groups and len(groups[-1]) < MAX_GROUP and \
-                f["px"] - groups[-1][-1]["px"] < 1.5 * max(f["fwhm_px"], groups[-1][-1]["fwhm_px"]):
+                f["px"] - groups[-1][-1]["px"] < GROUP_SEP * max(f["fwhm_px"], groups[-1][-1]["fwhm_px"]):
             groups[-1].append(f)
         else:
             groups.append([f])
@@ -210,19 +211,90 @@ def _touching(windows, hot):
     return np.flatnonzero(hit).tolist()
 
 
+def _colour_batches(ids, windows):
+    """Split groups into batches whose windows do not overlap one another.
+
+    Greedy colouring in order of window start (optimal for intervals): fitting
+    the batches one after the other, each on the latest model of the others,
+    is a Gauss-Seidel sweep, which settles overlapping neighbours where
+    refitting all at once (Jacobi) would make them overcorrect each other."""
+    colour_end = []            # last window end per colour
+    batches = []
+    for i in sorted(ids, key=lambda k: windows[k][0]):
+        a, b = windows[i]
+        for c, end in enumerate(colour_end):
+            if end <= a:
+                colour_end[c] = b
+                batches[c].append(i)
+                break
+        else:
+            colour_end.append(b)
+            batches.append([i])
+    return batches
+
+
+BLEND_SEP = 1.5      # components closer than this many FWHM are flagged as a blend
+
+
+def _mark_blends(g):
+    """Flag the components of a joint fit that lie within BLEND_SEP FWHM of another."""
+    for f in g:
+        f["blend"] = False
+    fitted = [f for f in g if f["fit"] and np.isfinite(f["fit"]["center"])]
+    for i, f in enumerate(fitted):
+        for h in fitted[i + 1:]:
+            width = max(f["fit"]["fwhm"], h["fit"]["fwhm"])
+            if abs(f["fit"]["center"] - h["fit"]["center"]) < BLEND_SEP * width:
+                f["blend"] = h["blend"] = True
+
+
+def _fit_batch(batch, groups, windows, x, r, sig, good, dx, model, own, passes):
+    """Fit the groups of one batch together; update `model` and `own` in place."""
+    problems, fitted = [], []
+    for i in batch:
+        g = groups[i]
+        a, b = windows[i]
+        sel = np.arange(a, b)
+        sel = sel[good[sel]]
+        if len(sel) < 3 * len(g) + 3:
+            for f in g:
+                f["fit"] = None
+            continue
+        local_dx = float(np.median(dx[sel]))
+        prev = [f.get("fit") for f in g]
+        data = r[sel] - (model[sel] - own[i][sel - a]) if passes else r[sel]
+        problems.append(GroupProblem(
+            x[sel], data, sig[sel],
+            [x[f["px"]] if not (passes and p and p["ok"]) else p["center"] for f, p in zip(g, prev)],
+            [f["fwhm_px"] * local_dx / GAUSS_FWHM for f in g],
+            [f["amp0"] for f in g], 0.25 * local_dx))
+        fitted.append(i)
+    for i, fits in zip(fitted, fit_groups(problems)):
+        g = groups[i]
+        a, b = windows[i]
+        for f, res in zip(g, fits):
+            f["fit"] = res
+            f["group"] = len(g)
+        _mark_blends(g)
+        new = _group_model(g, x, a, b)
+        model[a:b] += new - own.get(i, 0.0)
+        own[i] = new
+
+
 def _fit_groups(groups, x, r, sig, good, lo, hi, dx, changed=None):
     """Fit every group; a second pass refits crowded ones with their neighbours' models subtracted.
 
-    All groups of a pass are fitted together (`profiles.fit_groups`), each on the
-    data minus the model of the others from the pass before.  With `changed`
+    Groups are fitted in batches (`profiles.fit_groups`): all at once in the
+    first pass, in batches of non-overlapping windows in the second, each on
+    the data minus the latest model of the others (`_colour_batches`).  With `changed`
     (ids of features added since the last call), only groups that hold one of
     them or whose window touches such a group are refitted; the others keep
     their fits and enter the model as they are."""
     windows = []
     for g in groups:
-        span = max(f["fwhm_px"] for f in g)
-        a = max(lo, int(min(f["px"] for f in g) - 3 * span) - 2)
-        b = min(hi, int(max(f["px"] for f in g) + 3 * span) + 3)
+        half = max(max(3 * f["fwhm_px"], f.get("reach_px", 0.0)) for f in g)
+        a = max(lo, int(min(f["px"] for f in g) - half) - 2)
+        b = min(hi, int(max(f["px"] for f in g) + half) + 3)
         windows.append((a, b))
     model = np.zeros_like(r)
     todo = list(range(len(groups)))
@@ -253,34 +325,9 @@ def _fit_groups(groups, x, r, sig, good, lo, hi, dx, changed=None):
                 break
         else:
             crowded = todo
-        problems, fitted = [], []
-        for i in crowded:
-            g = groups[i]
-            a, b = windows[i]
-            sel = np.arange(a, b)
-            sel = sel[good[sel]]
-            if len(sel) < 3 * len(g) + 3:
-                for f in g:
-                    f["fit"] = None
-                continue
-            local_dx = float(np.median(dx[sel]))
-            prev = [f.get("fit") for f in g]
-            data = r[sel] - (model[sel] - own[i][sel - a]) if passes else r[sel]
-            problems.append(GroupProblem(
-                x[sel], data, sig[sel],
-                [x[f["px"]] if not (passes and p and p["ok"]) else p["center"] for f, p in zip(g, prev)],
-                [f["fwhm_px"] * local_dx / GAUSS_FWHM for f in g],
-                [f["amp0"] for f in g], 0.25 * local_dx))
-            fitted.append(i)
-        for i, fits in zip(fitted, fit_groups(problems)):
-            g = groups[i]
-            a, b = windows[i]
-            for f, res in zip(g, fits):
-                f["fit"] = res
-                f["group"] = len(g)
-            new = _group_model(g, x, a, b)
-            model[a:b] += new - own.get(i, 0.0)
-            own[i] = new
+        batches = [crowded] if passes == 0 else _colour_batches(crowded, windows)
+        for batch in batches:
+            _fit_batch(batch, groups, windows, x, r, sig, good, dx, model, own, passes)
     return model
 
 
@@ -358,15 +405,17 @@ def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorpt
                          meta=dict(table.meta))
 
 
-def _exclusion(feats, n, fallback, half_widths=2.5):
-    """Pixels to keep out of the continuum fit: +/- `half_widths` FWHM of every feature."""
+def _exclusion(feats, n, fallback, half_widths=2.5, use_reach=True):
+    """Pixels to keep out of the continuum fit: +/- `half_widths` FWHM of every feature
+    (or its reach, where that is wider and `use_reach`)."""
     exclude = np.zeros(n, dtype=bool)
     longest = 0
     for f in feats:
         fit = f.get("fit")
         width = f["fwhm_px"] if not (fit and np.isfinite(fit.get("fwhm", np.nan))) else \
             max(f["fwhm_px"], 1.0)
-        half = half_widths * width if fit else 1.5 * fallback(f)
+        reach = f.get("reach_px", 0.0) if use_reach else 0.0
+        half = max(half_widths * width, reach) if fit else 1.5 * fallback(f)
         a, b = max(0, int(f["px"] - half)), min(n, int(f["px"] + half) + 1)
         exclude[a:b] = True
         longest = max(longest, b - a)
@@ -390,20 +439,32 @@ def _new_feats(cands, feats):
     return added
 
 
-def _sync(feats, x, dx):
-    """Move candidates to their fitted centres and widths."""
+def _sync(feats, x, dx, sig):
+    """Move candidates to their fitted centres and widths, and set how far they reach.
+
+    The reach (pixels each side) is 3 FWHM for a Gaussian; for a Voigt profile
+    it extends to where the Lorentzian wing, flux gamma / (pi d^2), falls to half
+    the noise, so that the fit window, the model and the continuum's exclusion
+    hold the whole of a Stark-broadened line."""
     n = len(x)
     for g in feats:
         fit = g["fit"]
         if fit and fit["ok"] and np.isfinite(fit["center"]):
-            g["px"] = int(np.clip(np.searchsorted(x, fit["center"]), 0, n - 1))
-            g["fwhm_px"] = max(fit["fwhm"] / dx[g["px"]], 1.0)   # local step: log grids vary
+            px = g["px"] = int(np.clip(np.searchsorted(x, fit["center"]), 0, n - 1))
+            g["fwhm_px"] = max(fit["fwhm"] / dx[px], 1.0)   # local step: log grids vary
             g["amp0"] = fit["amplitude"]
+            reach = 3.0 * g["fwhm_px"]
+            if fit["profile"] == "voigt" and np.isfinite(sig[px]) and sig[px] > 0:
+                wing = np.sqrt(abs(fit["flux"]) * fit["lorentz_fwhm"] / 2 / (np.pi * 0.5 * sig[px]))
+                reach = max(reach, wing / dx[px])
+            g["reach_px"] = float(min(reach, n / 4))
 
 
 def _split_wide(feats, x, r, sig, good, dx, fwhm_px, n):
-    """Try two components where one wide component fits badly (an unresolved pair)."""
-    changed = False
+    """Try two components where one wide component fits badly (an unresolved pair).
+
+    Returns the features that replaced a single one (empty when none did)."""
+    changed = []
     for g in list(feats):
         fit = g["fit"]
         if not fit or g["group"] != 1 or not fit["ok"] or fit["chi2_red"] < 1.5:
@@ -429,7 +490,7 @@ def _split_wide(feats, x, r, sig, good, dx, fwhm_px, n):
         if chi_one - chi_two > 10 + 3 * np.log(len(sel)):
             feats.remove(g)
             feats.extend(trial)
-            changed = True
+            changed.extend(trial)
     return changed
 
 
@@ -467,19 +528,47 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
     r = y - cont
     feats = []
     model = np.zeros(n)
-    for round_ in range(4):
-        w_round = w if round_ == 0 else _inflated_weights(r, model, sig, good, w, feats)
-        added = _new_feats(_candidates(r - model, w_round, fwhm_px, threshold, kinds, n,
-                                       den_cache if w_round is w else None), feats)
+    # Voigt features (Stark-broadened lines) are held fixed over the whole segment while
+    # the continuum and the other features are found again: their Lorentzian wings reach
+    # far beyond any window and would otherwise bend the continuum and seed false features
+    frozen, fixed = [], np.zeros(n)
+    for round_ in range(5):
+        rr = r - fixed
+        split = []
+        if round_ > 0:
+            # a wide single component that fits badly is tried as a pair first: its residual
+            # would otherwise seed spurious neighbours of the opposite sign
+            split = _split_wide(feats, x, rr, sig, good, dx, fwhm_px, n)
+            if split:
+                model = _fit_groups(_groups(feats), x, rr, sig, good, 0, n, dx,
+                                    changed={id(f) for f in split})
+                _sync(feats, x, dx, sig)
+        w_round = w if round_ == 0 else _inflated_weights(rr, model, sig, good, w, feats)
+        added = _new_feats(_candidates(rr - model, w_round, fwhm_px, threshold, kinds, n,
+                                       den_cache if w_round is w else None), feats + frozen)
         feats.extend(added)
-        if not added and round_ > 0:
-            if not _split_wide(feats, x, r, sig, good, dx, fwhm_px, n):
-                break
-        elif not added:
+        if not added:
+            if split:
+                continue
             break
-        model = _fit_groups(_groups(feats), x, r, sig, good, 0, n, dx,
+        model = _fit_groups(_groups(feats), x, rr, sig, good, 0, n, dx,
                             changed=None if round_ == 0 else {id(f) for f in added})
-        _sync(feats, x, dx)
+        _sync(feats, x, dx, sig)
+        voigt = [f for f in feats if f["fit"] and f["fit"]["ok"] and f["fit"]["profile"] == "voigt"]
+        if voigt and not frozen:
+            frozen = voigt
+            fixed = sum(_group_model([f], x, 0, n) for f in frozen)
+            exclude, longest = _exclusion(feats, n, lambda f: f["fwhm_px"], use_reach=False)
+            knots = max(base_knots, 1.2 * longest)
+            cont, _ = fit_continuum(y - fixed, sig, good, knot_px=min(knots, max(n // 2, 8)),
+                                    exclude=exclude)
+            r = y - cont
+            feats, model = [], np.zeros(n)
+    if frozen:
+        # the held features measured last, on the data less everything else found
+        _fit_groups(_groups(frozen), x, r - model, sig, good, 0, n, dx)
+        _sync(frozen, x, dx, sig)
+        feats = feats + frozen
     rows = []
     for g in feats:
         fit = g["fit"]
@@ -496,7 +585,7 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
         if snr_fit < 0.5 * threshold:
             continue
         flags = []
-        if g["group"] > 1:
+        if g.get("blend"):
             flags.append("blend")
         if from_edge < 2 * fpx:
             flags.append("edge")

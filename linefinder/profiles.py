@@ -90,8 +90,11 @@ def fit_groups(problems, *, try_voigt=True):
         for k, comps in enumerate(out):
             strong = any(abs(o["flux"]) > 20 * o["flux_err"] for o in comps
                          if np.isfinite(o["flux_err"]))
-            # only where the Gaussians converged: a failed fit is no start for a harder one
-            if background[k] is not None and comps[0]["ok"] and comps[0]["chi2_red"] > 2.0 \
+            # only where the Gaussians converged (a failed fit is no start for a harder one)
+            # and misfit: chi^2 above its expectation by more than 3 of its own sigmas
+            dof = max(len(problems[k].x) - 3 * len(comps) - 2, 1)
+            excess = (comps[0]["chi2_red"] - 1.0) * np.sqrt(dof / 2.0)
+            if background[k] is not None and comps[0]["ok"] and excess > 3.0 \
                     and strong:
                 v = _fit_voigt(problems[k], comps, background[k])
                 if v is not None:

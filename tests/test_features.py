@@ -1,0 +1,139 @@
+"""Profile fits and feature measurement on synthetic lines with known answers."""
+
+import numpy as np
+import pytest
+from astropy import units as u
+from scipy.optimize import curve_fit
+from scipy.special import voigt_profile
+
+from linefinder.features import find_features
+from linefinder.profiles import GAUSS_FWHM, GroupProblem, fit_groups
+from linefinder.redshift import weighted_shift
+from linefinder.spectrum import SpectrumData
+
+
+def _two_gauss(x, a1, m1, s1, a2, m2, s2, c0, c1):
+    return (a1 * np.exp(-0.5 * ((x - m1) / s1) ** 2) + a2 * np.exp(-0.5 * ((x - m2) / s2) ** 2)
+            + c0 + c1 * (x - x.mean()))
+
+
+def test_batched_fits_agree_with_scipy_curve_fit(rng):
+    # reference library: scipy.optimize.curve_fit (MINPACK) on the same data, group by group
+    problems, refs = [], []
+    for _ in range(12):
+        x = np.linspace(0, 60, int(rng.integers(50, 140)))
+        truth = [rng.uniform(2, 8), rng.uniform(22, 28), rng.uniform(1.5, 3),
+                 rng.uniform(-6, 6), rng.uniform(33, 40), rng.uniform(1.5, 3), 0.1, 0.0]
+        y = _two_gauss(x, *truth) + rng.normal(0, 0.3, len(x))
+        guess = [truth[0] * 0.8, truth[1] + 0.7, truth[2] * 1.2, truth[3] * 0.8, truth[4] - 0.7,
+                 truth[5] * 1.2]
+        problems.append(GroupProblem(x, y, np.full(len(x), 0.3), [guess[1], guess[4]],
+                                     [guess[2], guess[5]], [guess[0], guess[3]], 0.1))
+        p, cov = curve_fit(_two_gauss, x, y, p0=guess + [0.0, 0.0], sigma=np.full(len(x), 0.3),
+                           absolute_sigma=True)
+        refs.append((p, np.sqrt(np.diag(cov))))
+    for comps, (p, perr) in zip(fit_groups(problems, try_voigt=False), refs):
+        assert all(c["ok"] for c in comps)
+        for k, c in enumerate(comps):
+            assert c["center"] == pytest.approx(p[3 * k + 1], abs=1e-4 * perr[3 * k + 1] + 1e-7)
+            assert c["amplitude"] == pytest.approx(p[3 * k], abs=1e-4 * perr[3 * k] + 1e-7)
+            assert c["fwhm"] == pytest.approx(GAUSS_FWHM * abs(p[3 * k + 2]), rel=1e-5)
+            # covariance (J^T J)^-1, scaled by chi2_red only when that exceeds 1
+            scale = max(c["chi2_red"], 1.0) ** 0.5
+            assert c["center_err"] == pytest.approx(perr[3 * k + 1] * scale, rel=1e-2)
+
+
+def test_gaussian_line_measured(rng):
+    # a known Gaussian emission line: centre, FWHM, flux and equivalent width within errors
+    x = np.linspace(5000.0, 5100.0, 2001)
+    a, mu, s, cont = 4.0, 5050.3, 0.6, 10.0
+    y = cont + a * np.exp(-0.5 * ((x - mu) / s) ** 2) + rng.normal(0, 0.2, len(x))
+    spec = SpectrumData(x * u.AA, y * u.adu, np.full(len(x), 0.2) * u.adu,
+                        meta={"source": "synthetic", "resolution": 5050 / (GAUSS_FWHM * s)})
+    t = find_features(spec).features
+    assert len(t) == 1 and t["kind"][0] == "emission"
+    row = t[0]
+    flux = a * s * np.sqrt(2 * np.pi)
+    assert abs(row["center"].value - mu) < 4 * row["center_err"].value
+    assert abs(row["fwhm"].value - GAUSS_FWHM * s) < 4 * row["fwhm_err"].value
+    assert abs(row["flux"].value - flux) < 4 * row["flux_err"].value
+    # equivalent width convention: negative for emission, W = -flux / continuum
+    assert row["eqw"].value == pytest.approx(-flux / cont, rel=0.05)
+
+
+def test_absorption_and_emission_both_found_and_restricted(rng):
+    x = np.linspace(6000.0, 6100.0, 4001)
+    y = (5 + 2.0 * np.exp(-0.5 * ((x - 6030) / 0.5) ** 2) - 1.5 * np.exp(-0.5 * ((x - 6070) / 0.5) ** 2)
+         + rng.normal(0, 0.1, len(x)))
+    spec = SpectrumData(x * u.AA, y * u.adu, np.full(len(x), 0.1) * u.adu,
+                        meta={"source": "synthetic", "resolution": 6050 / (GAUSS_FWHM * 0.5)})
+    t = find_features(spec).features
+    assert sorted(t["kind"]) == ["absorption", "emission"]
+    only = find_features(spec, kinds=("absorption",)).features
+    assert list(only["kind"]) == ["absorption"]
+    assert abs(only["center"][0].value - 6070) < 0.05
+
+
+def test_close_pair_deblended(rng):
+    # two lines 1.3 FWHM apart: two components, each flagged as part of a blend
+    x = np.linspace(0.0, 400.0, 4001)
+    s = 1.0
+    y = (1 + 3 * np.exp(-0.5 * ((x - 200) / s) ** 2) + 2 * np.exp(-0.5 * ((x - 203.06) / s) ** 2)
+         + rng.normal(0, 0.05, len(x)))
+    spec = SpectrumData(x * u.AA, y * u.adu, np.full(len(x), 0.05) * u.adu,
+                        meta={"source": "synthetic", "resolution": 200 / (GAUSS_FWHM * s)})
+    t = find_features(spec).features
+    c = np.sort(t["center"].value)
+    assert len(c) == 2
+    assert abs(c[0] - 200) < 0.1 and abs(c[1] - 203.06) < 0.1
+    assert all("blend" in f for f in t["flags"])
+
+
+def test_cosmic_ray_spike_rejected(rng):
+    x = np.linspace(4000.0, 4100.0, 3001)
+    y = 10 + 3 * np.exp(-0.5 * ((x - 4050) / 0.4) ** 2) + rng.normal(0, 0.1, len(x))
+    y[700] += 8.0           # one hot pixel
+    spec = SpectrumData(x * u.AA, y * u.adu, np.full(len(x), 0.1) * u.adu,
+                        meta={"source": "synthetic", "resolution": 4050 / (GAUSS_FWHM * 0.4)})
+    t = find_features(spec).features
+    assert len(t) == 1
+    assert abs(t["center"][0].value - 4050) < 0.02
+
+
+def test_voigt_wings_detected(rng):
+    # a line with strong Lorentzian wings (Stark-like) is refitted as a Voigt profile
+    x = np.linspace(4800.0, 4920.0, 6001)
+    sg, gl = 0.15, 0.8
+    y = 2 + 40 * voigt_profile(x - 4861.3, sg, gl) + rng.normal(0, 0.02, len(x))
+    spec = SpectrumData(x * u.AA, y * u.adu, np.full(len(x), 0.02) * u.adu,
+                        meta={"source": "synthetic", "resolution": 4861 / (GAUSS_FWHM * sg)})
+    t = find_features(spec).features
+    k = int(np.argmin(np.abs(t["center"].value - 4861.3)))
+    assert t["profile"][k] == "voigt"
+    # FWHM of the Voigt profile, Olivero & Longbothum 1977 approximation (0.02 % accurate)
+    fl, fg = 2 * gl, GAUSS_FWHM * sg
+    fwhm = 0.5346 * fl + np.sqrt(0.2166 * fl ** 2 + fg ** 2)
+    assert t["fwhm"][k].value == pytest.approx(fwhm, rel=0.03)
+    assert t["flux"][k].value == pytest.approx(40.0, rel=0.03)
+
+
+def test_weighted_shift_is_the_inverse_variance_mean_when_lines_agree(rng):
+    sigma = rng.uniform(1e-5, 5e-5, 8)
+    d = 0.3 + rng.normal(0, 1, 8) * sigma * 0.3      # scatter well inside the errors
+    s, s_err, tau = weighted_shift(d, sigma)
+    w = 1 / sigma ** 2
+    assert tau == 0.0
+    assert s == pytest.approx(np.sum(w * d) / np.sum(w), rel=1e-12)
+    assert s_err == pytest.approx(1 / np.sqrt(np.sum(w)), rel=1e-12)
+
+
+def test_weighted_shift_estimates_extra_scatter(rng):
+    # lines that scatter by tau = 1e-4 beyond errors of 1e-5: tau is recovered, and the
+    # error of the shift reflects the real scatter (std / sqrt(n)), not the tiny errors
+    n = 400
+    sigma = np.full(n, 1e-5)
+    d = 0.2 + rng.normal(0, 1e-4, n) + rng.normal(0, 1, n) * sigma
+    s, s_err, tau = weighted_shift(d, sigma)
+    assert tau == pytest.approx(1e-4, rel=0.1)
+    assert s_err == pytest.approx(np.std(d) / np.sqrt(n), rel=0.1)
+    assert abs(s - 0.2) < 4 * s_err
