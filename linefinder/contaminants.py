@@ -22,11 +22,14 @@ TELLURIC_BANDS_AIR = {"O2 B band": (6867.0, 6884.0), "H2O 7200": (7160.0, 7340.0
                       "H2O 9300": (9300.0, 9650.0)}
 
 
-def sky_mask(center, center_err, fwhm, *, medium="vacuum", tolerance=1.0):
-    """Boolean array: features that coincide with a sky line or sit in a telluric band.
+def sky_mask(center, center_err, fwhm, *, medium="vacuum", tolerance=1.0, kind=None):
+    """Boolean array: features that coincide with a sky line or are absorption in a telluric band.
 
     `center`, `center_err`, `fwhm` are wavelength Quantities; a feature is on a
-    sky line when closer than `tolerance` times (its FWHM/2 + 3 sigma).
+    sky line when closer than `tolerance` times (its FWHM/2 + 3 sigma).  Sky-line
+    residuals can have either sign; telluric bands absorb, so with `kind`
+    ("emission"/"absorption" per feature) only absorption features in a band
+    are masked: an emission line seen through a band is attenuated, not made.
     """
     c = u.Quantity(center)
     if not c.unit.is_equivalent(u.m):
@@ -40,10 +43,12 @@ def sky_mask(center, center_err, fwhm, *, medium="vacuum", tolerance=1.0):
         lines = air_to_vacuum(lines * u.AA).to_value(u.AA)
         bands = air_to_vacuum(bands * u.AA).to_value(u.AA)
     out = np.zeros(len(c_aa), dtype=bool)
+    absorbing = np.ones(len(c_aa), dtype=bool) if kind is None else \
+        np.asarray(kind).astype(str) != "emission"
     for i, x in enumerate(np.atleast_1d(c_aa)):
         tol = tolerance * (half[i] + 3 * err[i] if np.isfinite(err[i]) else half[i])
         if np.any(np.abs(lines - x) < max(tol, 1.0)):
             out[i] = True
-        elif np.any((bands[:, 0] <= x) & (x <= bands[:, 1])):
+        elif absorbing[i] and np.any((bands[:, 0] <= x) & (x <= bands[:, 1])):
             out[i] = True
     return out

@@ -494,6 +494,37 @@ def _split_wide(feats, x, r, sig, good, dx, fwhm_px, n):
     return changed
 
 
+SPIKE_SIGMA = 5.0
+
+
+def _spikes(y, cont, sig, good, fwhm_px):
+    """Single-pixel spikes (cosmic rays, hot or dead pixels), to be masked before the search.
+
+    A pixel is a spike when it stands more than SPIKE_SIGMA sigma above (or
+    below) both neighbours and its neighbours carry less than half of the
+    share of its excess over the continuum that a line of the instrument's
+    width would give them (exp(-1/2 s^2) of the peak, s the Gaussian sigma in
+    pixels).  A line on which a spike lands keeps its other pixels.  Only on
+    grids that sample the resolution element with 1.5 pixels or more: on
+    coarser ones a narrow line and a spike look alike, and the fitted width
+    decides afterwards (see `_segment`).
+    """
+    n = len(y)
+    out = np.zeros(n, dtype=bool)
+    if fwhm_px < 1.5 or n < 3:
+        return out
+    share = 0.5 * np.exp(-0.5 * (GAUSS_FWHM / fwhm_px) ** 2)
+    e = np.where(good, y - cont, np.nan)
+    with np.errstate(invalid="ignore"):
+        for sign in (1.0, -1.0):
+            v = sign * e
+            left = np.concatenate([[np.nan], v[:-1]])
+            right = np.concatenate([v[1:], [np.nan]])
+            nb = np.fmax(left, right)           # the higher good neighbour
+            out |= good & (v - nb > SPIKE_SIGMA * sig) & (nb < share * v) & np.isfinite(nb)
+    return out
+
+
 def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
     n = len(y)
     w = np.where(good & np.isfinite(sig) & (sig > 0), 1.0 / np.where(sig > 0, sig, 1) ** 2, 0.0)
@@ -502,6 +533,10 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
     # velocity widths at high R) are not absorbed before they are seen
     first_knots = max(base_knots, min(n / 10, 400))
     cont, _ = fit_continuum(y, sig, good, knot_px=min(first_knots, max(n // 3, 8)))
+    spikes = _spikes(y, cont, sig, good, fwhm_px)
+    if spikes.any():
+        good = good & ~spikes
+        w = np.where(spikes, 0.0, w)
     feats = []
     den_cache = {}      # matched-filter denominators for the weights w (keyed by id(w))
     # continuum and features refine each other: wide features push the knots apart

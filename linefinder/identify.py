@@ -265,7 +265,8 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     sy = np.sqrt(sy_meas ** 2 + calibration ** 2 + (resolution_fraction / R) ** 2)
     is_freq_axis = len(feats) > 0 and not u.Quantity(feats["center"]).unit.is_equivalent(u.m)
     if len(feats):
-        sky = sky_mask(feats["center"], feats["center_err"], feats["fwhm"], medium=medium) \
+        sky = sky_mask(feats["center"], feats["center_err"], feats["fwhm"], medium=medium,
+                       kind=feats["kind"]) \
             if not is_freq_axis else np.zeros(len(feats), bool)
     else:
         sky = np.zeros(0, bool)

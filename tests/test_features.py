@@ -137,3 +137,19 @@ def test_weighted_shift_estimates_extra_scatter(rng):
     assert tau == pytest.approx(1e-4, rel=0.1)
     assert s_err == pytest.approx(np.std(d) / np.sqrt(n), rel=0.1)
     assert abs(s - 0.2) < 4 * s_err
+
+
+def test_spike_on_a_line_is_masked_and_the_line_kept(rng):
+    # a cosmic ray landing on a weak line: the pixel is masked, the line still measured
+    x = np.linspace(4000.0, 4100.0, 2001)
+    s = 0.12                                   # FWHM 0.28 A = 5.7 pixels
+    y = 10 + 1.0 * np.exp(-0.5 * ((x - 4050.0) / s) ** 2) + rng.normal(0, 0.1, len(x))
+    k = int(np.argmin(np.abs(x - 4050.0)))
+    y[k] += 6.0
+    spec = SpectrumData(x * u.AA, y * u.adu, np.full(len(x), 0.1) * u.adu,
+                        meta={"source": "synthetic", "resolution": 4050 / (GAUSS_FWHM * s)})
+    t = find_features(spec).features
+    assert len(t) == 1
+    assert "masked" in t["flags"][0]
+    assert abs(t["center"][0].value - 4050.0) < 4 * t["center_err"][0].value
+    assert t["amplitude"][0].value == pytest.approx(1.0, abs=5 * 0.1 / np.sqrt(3))

@@ -104,3 +104,15 @@ def test_featureless_identify_status_none(rng):
                         np.full(len(lam), 0.01) * u.adu, meta={"source": "flat"})
     res = identify(spec)
     assert res.status == "none" and res.z is None
+
+
+def test_sky_mask_bands_absorb_and_lines_mask_either_sign():
+    # telluric bands make absorption, so only absorption features in them are masked; sky-line
+    # residuals can have either sign (band edges and the 5577.34 A line: common sky atlases)
+    from linefinder.contaminants import sky_mask
+
+    c = [7200.0, 7200.0, 5577.34, 5577.34] * u.AA
+    err = [0.1] * 4 * u.AA
+    fwhm = [2.0] * 4 * u.AA
+    kind = ["emission", "absorption", "emission", "absorption"]
+    assert list(sky_mask(c, err, fwhm, medium="air", kind=kind)) == [False, True, True, True]
