@@ -178,10 +178,12 @@ def assign(y, sy, flux, blend, x, strength, group, s, *, tol=TOL):
     for _ in range(2):   # second pass with the intensity prior from the first assignment
         ll = base + _intensity_prior(choice, flux, st, gcode, rows, cols)
         choice = _choose(rows, cols, ll, nf, comp)
-    # blends may share a line: a blended feature left without one keeps its best candidate
+    # blends may share a line: a blended feature left without one keeps its best candidate,
+    # if that is likelier than "unidentified"
     top = _best_per_row(rows, ll, nf)
     blend = np.asarray(blend, dtype=bool)
     lone = (choice < 0) & blend & (top >= 0)
+    lone[lone] = ll[top[lone]] > NULL_LOG_LIKELIHOOD
     choice[lone] = cols[top[lone]]
     ll = base + _intensity_prior(choice, flux, st, gcode, rows, cols)
     like = np.exp(ll)

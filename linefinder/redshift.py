@@ -230,15 +230,23 @@ def _intensity_evidence(flux, strength, sigma, sigma_random=RANDOM_FLUX_SIGMA):
     ln(flux / strength) scattering by `sigma` about a common scale, against
     fluxes unrelated to strength (scatter `sigma_random`).  The scale is fitted,
     so one line's normalisation term is not counted: one flux carries no evidence."""
+    terms, norm = _intensity_terms(flux, strength, sigma, sigma_random)
+    return float(np.sum(terms)) - norm
+
+
+def _intensity_terms(flux, strength, sigma, sigma_random=RANDOM_FLUX_SIGMA):
+    """Per-line terms of `_intensity_evidence` (0 where a flux is unusable) and the
+    normalisation term taken off their sum."""
+    terms = np.zeros(len(flux))
     ok = np.isfinite(flux) & (flux > 0) & (strength > 0)
     if ok.sum() < 2:
-        return 0.0
+        return terms, 0.0
     v = np.log(flux[ok] / strength[ok])
     v0 = np.log(flux[ok])
     dev = v - np.median(v)
     dev0 = v0 - np.median(v0)
-    return float(np.sum(np.log(sigma_random / sigma) - 0.5 * (dev / sigma) ** 2
-                        + 0.5 * (dev0 / sigma_random) ** 2) - np.log(sigma_random / sigma))
+    terms[ok] = np.log(sigma_random / sigma) - 0.5 * (dev / sigma) ** 2 + 0.5 * (dev0 / sigma_random) ** 2
+    return terms, float(np.log(sigma_random / sigma))
 
 
 def weighted_shift(d, sigma):
@@ -289,6 +297,7 @@ def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterati
     times the wavelength)."""
     s = float(s0)
     sol = Solution(s=s, s_err=np.inf, score=0.0)
+    banned = set()
     for _ in range(iterations):
         d = (y[:, None] - s - x[None, :]) / sy[:, None]
         ok = (np.abs(d) < tol) & kinds_ok[None, :]
@@ -298,36 +307,48 @@ def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterati
             i, j = divmod(int(flat), d.shape[1])
             if not ok[i, j]:
                 break
-            if i in used_f or j in used_l:
+            if i in used_f or j in used_l or (i, j) in banned:
                 continue
             used_f.add(i)
             used_l.add(j)
             pairs.append((i, j))
         if not pairs:
             return sol
-        fi = np.array([p[0] for p in pairs])
-        lj = np.array([p[1] for p in pairs])
-        s_new, s_err, _ = weighted_shift(y[fi] - x[lj], (sy if sy_fit is None else sy_fit)[fi])
-        s_err = float(np.hypot(s_err, s_floor))
-        resid = (y[fi] - s_new - x[lj]) / sy[fi]
-        chi2 = float(np.sum(resid ** 2))
-        if window is not None:
-            inside = (x + s_new > window[0]) & (x + s_new < window[1])
-            total = float(np.sum(strength[inside]))
-            width = window[1] - window[0]
-        else:
-            total, width = float(np.sum(strength)), float(np.ptp(y) + 1e-3)
-        gains = _evidence(resid, sy[fi], strength[lj], total, width)
-        if line_weight is not None:
-            gains = gains * line_weight[lj]
-            if not np.any(line_weight[lj] >= 1):
-                gains = gains * 0.5   # no primary-species line at all: half again
+        while True:
+            fi = np.array([p[0] for p in pairs])
+            lj = np.array([p[1] for p in pairs])
+            s_new, s_err, _ = weighted_shift(y[fi] - x[lj], (sy if sy_fit is None else sy_fit)[fi])
+            s_err = float(np.hypot(s_err, s_floor))
+            resid = (y[fi] - s_new - x[lj]) / sy[fi]
+            chi2 = float(np.sum(resid ** 2))
+            if window is not None:
+                inside = (x + s_new > window[0]) & (x + s_new < window[1])
+                total = float(np.sum(strength[inside]))
+                width = window[1] - window[0]
+            else:
+                total, width = float(np.sum(strength)), float(np.ptp(y) + 1e-3)
+            gains = _evidence(resid, sy[fi], strength[lj], total, width)
+            if line_weight is not None:
+                gains = gains * line_weight[lj]
+                if not np.any(line_weight[lj] >= 1):
+                    gains = gains * 0.5   # no primary-species line at all: half again
+            terms, norm = (_intensity_terms(np.abs(flux[fi]), strength[lj], intensity_sigma)
+                           if flux is not None and len(fi) >= 2 else (np.zeros(len(fi)), 0.0))
+            # a match whose flux contradicts its expected strength by more than its position
+            # supports it explains nothing: the feature is left to something else
+            net = gains + terms
+            worst = int(np.argmin(net))
+            if len(pairs) <= 2 or net[worst] >= 0:
+                break
+            banned.add(pairs[worst])
+            used_l.discard(pairs[worst][1])
+            del pairs[worst]
         score = float(np.sum(gains) - np.max(gains))   # the first line is free
         missing, cost = _missing_lines(s_new, y, sy, w, x, strength, fi, lj, used_l, window, tol,
                                        fwhm_ln, group)
         score -= cost
         if flux is not None and len(fi) >= 2:
-            score += _intensity_evidence(np.abs(flux[fi]), strength[lj], intensity_sigma)
+            score += float(np.sum(terms)) - norm
         sol = Solution(s=s_new, s_err=s_err, score=score,
                        matches=[(int(i), int(j), float(r)) for i, j, r in zip(fi, lj, resid)],
                        chi2=chi2, missing=missing)
