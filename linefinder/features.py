@@ -293,6 +293,8 @@ def _fit_groups(groups, x, r, sig, good, lo, hi, dx, changed=None):
     windows = []
     for g in groups:
         half = max(max(3 * f["fwhm_px"], f.get("reach_px", 0.0)) for f in g)
+        for f in g:
+            f["win_px"] = f["fwhm_px"]       # the width this fit's window was made for
         a = max(lo, int(min(f["px"] for f in g) - half) - 2)
         b = min(hi, int(max(f["px"] for f in g) + half) + 3)
         windows.append((a, b))
@@ -589,6 +591,16 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
         model = _fit_groups(_groups(feats), x, rr, sig, good, 0, n, dx,
                             changed=None if round_ == 0 else {id(f) for f in added})
         _sync(feats, x, dx, sig)
+        for _ in range(2):
+            # a line found at a narrower kernel than its width was fitted in too small a
+            # window, where its wings and the linear term trade off: refit in a window of
+            # the fitted width
+            grown = {id(f) for f in feats if f["fit"] and f["fit"]["ok"]
+                     and f["fwhm_px"] > 1.5 * f.get("win_px", np.inf)}
+            if not grown:
+                break
+            model = _fit_groups(_groups(feats), x, rr, sig, good, 0, n, dx, changed=grown)
+            _sync(feats, x, dx, sig)
         voigt = [f for f in feats if f["fit"] and f["fit"]["ok"] and f["fit"]["profile"] == "voigt"]
         if voigt and not frozen:
             frozen = voigt
