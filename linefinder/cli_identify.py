@@ -16,7 +16,8 @@ def _run(args):
     data = load_input(args)
     return identify(data, species=args.species, z=getattr(args, "z", None), zmin=args.zmin,
                     zmax=args.zmax, series=args.series, kinds=kinds_from_args(args), snr=args.snr,
-                    resolution=args.resolution, extra_lines=extra, mask_sky=args.mask_sky)
+                    resolution=args.resolution, extra_lines=extra, mask_sky=args.mask_sky,
+                    mask_telluric=args.mask_telluric)
 
 
 def _print_summary(res, s, source):
@@ -75,7 +76,7 @@ def _cmd_demo(args):
     a = A()
     for k, v in dict(spectrum=str(path), index=None, hdu=None, medium=None, columns=None,
                      input_unit=None, snr=5.0, resolution=None, emission=False, absorption=False,
-                     species=None, zmin=None, zmax=None, series=None, mask_sky=True,
+                     species=None, zmin=None, zmax=None, series=None, mask_sky=True, mask_telluric=False,
                      extra_lines=str(extra), z=None).items():
         setattr(a, k, v)
     res = _run(a)
@@ -93,7 +94,10 @@ def _options(p):
     p.add_argument("--zmin", type=float, help="lowest redshift searched (default 0; radio -0.005)")
     p.add_argument("--zmax", type=float, help="highest redshift searched (default 7; radio 0.005)")
     p.add_argument("--extra-lines", metavar="FILE", help="your own line list (CSV/ECSV)")
-    p.add_argument("--mask-sky", action="store_true", help="leave night-sky lines and telluric bands out")
+    p.add_argument("--mask-sky", action="store_true",
+                   help="leave features on night-sky emission lines out (either sign)")
+    p.add_argument("--mask-telluric", action="store_true",
+                   help="leave absorption features inside telluric bands out")
     p.add_argument("--format", choices=["text", "json"], default="text")
 
 

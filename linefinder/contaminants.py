@@ -3,8 +3,9 @@
 Night-sky emission lines and telluric absorption bands, standard air
 wavelengths in Å (values recalled from common sky-line atlases, e.g.
 Osterbrock et al. 1996, to the 0.01 Å shown; band edges are approximate,
-common practice).  Used as a mask: features inside are flagged ``sky`` and
-left out of redshift and identification unless asked otherwise.
+common practice).  Features on a sky line are flagged ``sky``, absorption
+features in a telluric band ``telluric``; each set is left out of redshift
+and identification when asked (``mask_sky``, ``mask_telluric``).
 """
 
 import numpy as np
@@ -22,7 +23,8 @@ TELLURIC_BANDS_AIR = {"O2 B band": (6867.0, 6884.0), "H2O 7200": (7160.0, 7340.0
                       "H2O 9300": (9300.0, 9650.0)}
 
 
-def sky_mask(center, center_err, fwhm, *, medium="vacuum", tolerance=1.0, kind=None):
+def sky_mask(center, center_err, fwhm, *, medium="vacuum", tolerance=1.0, kind=None, lines=True,
+             bands=True):
     """Boolean array: features that coincide with a sky line or are absorption in a telluric band.
 
     `center`, `center_err`, `fwhm` are wavelength Quantities; a feature is on a
@@ -30,6 +32,7 @@ def sky_mask(center, center_err, fwhm, *, medium="vacuum", tolerance=1.0, kind=N
     residuals can have either sign; telluric bands absorb, so with `kind`
     ("emission"/"absorption" per feature) only absorption features in a band
     are masked: an emission line seen through a band is attenuated, not made.
+    `lines` and `bands` choose which of the two tests apply.
     """
     c = u.Quantity(center)
     if not c.unit.is_equivalent(u.m):
@@ -37,18 +40,19 @@ def sky_mask(center, center_err, fwhm, *, medium="vacuum", tolerance=1.0, kind=N
     c_aa = c.to_value(u.AA)
     err = u.Quantity(center_err).to_value(u.AA)
     half = u.Quantity(fwhm).to_value(u.AA) / 2
-    lines = np.array(list(SKY_LINES_AIR.values()))
-    bands = np.array(list(TELLURIC_BANDS_AIR.values()))
+    use_lines, use_bands = lines, bands
+    sky = np.array(list(SKY_LINES_AIR.values()))
+    band = np.array(list(TELLURIC_BANDS_AIR.values()))
     if medium == "vacuum":
-        lines = air_to_vacuum(lines * u.AA).to_value(u.AA)
-        bands = air_to_vacuum(bands * u.AA).to_value(u.AA)
+        sky = air_to_vacuum(sky * u.AA).to_value(u.AA)
+        band = air_to_vacuum(band * u.AA).to_value(u.AA)
     out = np.zeros(len(c_aa), dtype=bool)
     absorbing = np.ones(len(c_aa), dtype=bool) if kind is None else \
         np.asarray(kind).astype(str) != "emission"
     for i, x in enumerate(np.atleast_1d(c_aa)):
         tol = tolerance * (half[i] + 3 * err[i] if np.isfinite(err[i]) else half[i])
-        if np.any(np.abs(lines - x) < max(tol, 1.0)):
+        if use_lines and np.any(np.abs(sky - x) < max(tol, 1.0)):
             out[i] = True
-        elif absorbing[i] and np.any((bands[:, 0] <= x) & (x <= bands[:, 1])):
+        elif use_bands and absorbing[i] and np.any((band[:, 0] <= x) & (x <= band[:, 1])):
             out[i] = True
     return out

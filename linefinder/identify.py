@@ -239,7 +239,8 @@ def _observed(features, medium):
 
 def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
              kinds=("emission", "absorption"), snr=5.0, resolution=None, extra_lines=None,
-             mask_sky=False, calibration=2e-5, resolution_fraction=0.1, find_systems=True):
+             mask_sky=False, mask_telluric=False, calibration=2e-5, resolution_fraction=0.1,
+             find_systems=True):
     """Identify the hydrogenic lines of a spectrum or a peak list; see the module docstring."""
     from .features import find_features
     from .readers import is_peak_list
@@ -264,12 +265,12 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     sy_meas = np.nan_to_num(rel, nan=1.0 / R)
     sy = np.sqrt(sy_meas ** 2 + calibration ** 2 + (resolution_fraction / R) ** 2)
     is_freq_axis = len(feats) > 0 and not u.Quantity(feats["center"]).unit.is_equivalent(u.m)
-    if len(feats):
-        sky = sky_mask(feats["center"], feats["center_err"], feats["fwhm"], medium=medium,
-                       kind=feats["kind"]) \
-            if not is_freq_axis else np.zeros(len(feats), bool)
-    else:
-        sky = np.zeros(0, bool)
+    sky = np.zeros(len(feats), bool)
+    telluric = np.zeros(len(feats), bool)
+    if len(feats) and not is_freq_axis:
+        args = (feats["center"], feats["center_err"], feats["fwhm"])
+        sky = sky_mask(*args, medium=medium, bands=False)
+        telluric = sky_mask(*args, medium=medium, kind=feats["kind"], lines=False) & ~sky
     reg = regime(lam) if len(lam) else "optical"
     if zmin is None:
         zmin = -0.005 if reg == "radio" else 0.0
@@ -303,7 +304,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     y = np.log(lam) if len(lam) else np.zeros(0)
     snr_arr = np.asarray(feats["snr"], dtype=float) if len(feats) else np.zeros(0)
     w = np.log1p(np.clip(np.nan_to_num(snr_arr, nan=5.0), 0, 1e4))
-    use = ~(sky if mask_sky else np.zeros(len(feats), bool))
+    use = ~((sky & mask_sky) | (telluric & mask_telluric))
     s_lo, s_hi = np.log1p(zmin), np.log1p(zmax)
     anchors = np.flatnonzero(strength >= 0.02)
     window = _observed_window(feature_result, y)
@@ -327,7 +328,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
         sols = [sol] if sol.n_lines else []
     status = classify(sols)
     best_s = sols[0].s if sols else (np.log1p(z) if z is not None else None)
-    out = _feature_table(feats, sky, mask_sky)
+    out = _feature_table(feats, sky, telluric, mask_sky, mask_telluric)
     # user lines compete in the same assignment (strength 1: the user expects them), so a
     # weak hydrogenic line cannot take a feature that the user's list explains better
     x_user = np.log([line["rest_vacuum_m"] for line in extra_lines]) if extra_lines else np.zeros(0)
@@ -388,6 +389,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                    if len(cat) else names, "resolution": R, "calibration_term": calibration,
                    "resolution_fraction": resolution_fraction, "z_range": [zmin, zmax],
                    "z_fixed": z is not None, "sky_masked": bool(mask_sky),
+                   "telluric_masked": bool(mask_telluric),
                    "constants": cat.meta.get("constants"), "catalogue": dict(cat.meta)}
     return result
 
@@ -449,12 +451,13 @@ def _peaks_as_features(peaks):
     return t
 
 
-def _feature_table(feats, sky, mask_sky):
+def _feature_table(feats, sky, telluric, mask_sky, mask_telluric):
     out = QTable()
     for col in ("center", "center_err", "fwhm", "flux", "snr", "kind"):
         out[col] = feats[col]
     flags = [str(f) for f in feats["flags"]] if len(feats) else []
-    flags = [",".join([p for p in (f, "sky" if s else "") if p]) for f, s in zip(flags, sky)]
+    flags = [",".join([p for p in (f, "sky" if s else "", "telluric" if t else "") if p])
+             for f, s, t in zip(flags, sky, telluric)]
     out["flags"] = np.array(flags, dtype=object).astype(str) if len(flags) else np.array([], str)
     n = len(feats)
     out["label"] = np.full(n, "", dtype=object).astype("U32")
@@ -471,6 +474,7 @@ def _feature_table(feats, sky, mask_sky):
     out["alternatives"] = np.full(n, "", dtype="U200")
     out["user_line"] = np.full(n, "", dtype="U40")
     out.meta["sky_mask_applied"] = bool(mask_sky)
+    out.meta["telluric_mask_applied"] = bool(mask_telluric)
     return out
 
 

@@ -99,3 +99,23 @@ def test_corrupt_fits(tmp_path, capsys):
     p.write_bytes(sample_path("emission_galaxy.fits").read_bytes()[:5000])
     assert main(["peaks", str(p)]) == 2
     assert str(p) in capsys.readouterr().err
+
+
+def test_telluric_mask_is_separate_from_sky_mask(capsys):
+    # a star's H-alpha absorption inside the 7160-7340 A water band (z ~ 0.1): flagged
+    # "telluric"; left out only with --mask-telluric
+    import numpy as np
+    from astropy import units as u
+
+    from linefinder.identify import identify
+    from linefinder.synthetic import make_spectrum
+
+    rng = np.random.default_rng(7)
+    spec, truth = make_spectrum(rng, z=0.1, snr=60, resolution=3000, kind="absorption",
+                                contaminants=False)
+    res = identify(spec, mask_sky=True)
+    ha = [i for i, c in enumerate(res.features["center"].to_value(u.AA)) if abs(c - 7219.2) < 3]
+    assert ha and "telluric" in res.features["flags"][ha[0]]
+    assert res.features["label"][ha[0]] == "Hα"
+    masked = identify(spec, mask_sky=True, mask_telluric=True)
+    assert masked.features["label"][ha[0]] == ""
