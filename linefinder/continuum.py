@@ -49,9 +49,10 @@ class _UniformSpline:
     needs no chunking.  A faint second-difference penalty on the coefficients
     keeps the system regular: faint (1e-9 of the typical normal-matrix
     diagonal) where the data constrain the coefficients, which leaves the
-    least-squares fit unchanged there, and as strong as the data where they
-    hardly do (gaps, excluded or clipped lines wider than a knot interval), so
-    the spline bridges such stretches smoothly instead of swinging wildly.
+    least-squares fit unchanged there, and growing to the strength of the data
+    where a coefficient has lost more than half of its support to excluded or
+    clipped pixels (a line near an end, gaps), so the spline bridges such
+    stretches smoothly instead of swinging wildly.
     """
 
     def __init__(self, n, knot_px):
@@ -74,8 +75,12 @@ class _UniformSpline:
         # seven weighted moments of t, without forming the ten products per pixel
         self.prod = np.array([np.convolve(_BASIS_POLY[a], _BASIS_POLY[b]) for a, b in self.pairs])
 
-    def fit(self, y, w2):
-        """Coefficients minimising sum w2 (y - s)^2 (+ the faint penalty)."""
+    def fit(self, y, w2, full_diag=None):
+        """Coefficients minimising sum w2 (y - s)^2 (+ the penalty).
+
+        `full_diag`: the normal-matrix diagonal with every valid pixel used; a
+        coefficient that keeps less than half of that support (excluded or
+        clipped pixels) counts as weakly constrained."""
         nc, m = self.n_coef, self.m
         # sums over each knot interval (pixels of one interval are contiguous)
         mom = np.empty((7, m))
@@ -102,14 +107,32 @@ class _UniformSpline:
             # data hardly constrain
             diag = ab[3].copy()
             typical = float(np.median(diag[diag > 0])) if (diag > 0).any() else 1.0
-            weak = diag < 1e-3 * typical
-            touch = weak[:-2] | weak[1:-1] | weak[2:]
-            lam = np.where(touch, typical, 1e-9 * typical)
+            if full_diag is None:
+                lack = (diag < 1e-3 * typical).astype(float)
+            else:
+                frac = diag / np.maximum(full_diag, 1e-300 * typical)
+                lack = np.clip(1.0 - frac / 0.5, 0.0, 1.0) ** 2
+                lack[full_diag <= 0] = 1.0
+            worst = np.maximum(np.maximum(lack[:-2], lack[1:-1]), lack[2:])
+            lam = typical * (1e-9 + worst)
             k = np.arange(nc - 2)
             for a, ca in enumerate(_D2):
                 for b in range(a, 3):
                     ab[3 - (b - a)] += ca * _D2[b] * np.bincount(k + b, weights=lam, minlength=nc)
         return solveh_banded(ab, rhs, check_finite=False)
+
+    def diag(self, w2):
+        """Diagonal of the normal matrix for weights w2."""
+        mom = np.empty((7, self.m))
+        q = w2
+        for p in range(7):
+            mom[p] = np.add.reduceat(q, self.starts)
+            q = q * self.t
+        d = np.zeros(self.n_coef)
+        for k, (a, b) in enumerate(self.pairs):
+            if a == b:
+                d[a:a + self.m] += self.prod[k] @ mom
+        return d
 
     def __call__(self, coef):
         m = self.m
@@ -121,7 +144,7 @@ _D2 = (1.0, -2.0, 1.0)
 _BASIS_POLY = np.array([[1, -3, 3, -1], [4, 0, -6, 3], [1, 3, 3, -3], [0, 0, 0, 1]]) / 6.0
 
 
-def fit_continuum(y, sigma, good, *, knot_px=60, clip=(3.0, 3.0), iterations=10, grow=2,
+def fit_continuum(y, sigma, good, *, knot_px=60, clip=(3.0, 3.0), iterations=15, grow=2,
                   exclude=None):
     """Continuum of one segment; returns (continuum, pixels used)."""
     n = len(y)
@@ -134,16 +157,23 @@ def fit_continuum(y, sigma, good, *, knot_px=60, clip=(3.0, 3.0), iterations=10,
     w2 = w * w
     y0 = np.where(good & np.isfinite(y), y, 0.0)
     spline = _UniformSpline(n, max(int(knot_px), 8))
+    full = spline.diag(np.where(good, w2, 0.0))
     cont = np.full(n, np.median(y[good]) if good.any() else 0.0)
     for _ in range(iterations):
         if use.sum() < 8:
             break
         try:
-            new = spline(spline.fit(y0, np.where(use, w2, 0.0)))
+            new = spline(spline.fit(y0, np.where(use, w2, 0.0), full))
         except (ValueError, np.linalg.LinAlgError):
             new = np.full(n, np.median(y[use]))
         resid = (y0 - new) * w
-        bad = good & ((resid > clip[0]) | (resid < -clip[1]))
+        # thresholds in sigmas, widened while the fit is still far off (robust scatter of
+        # the residuals above 1): a first fit dragged by a strong line clips the line, not
+        # the whole spectrum
+        r_use = resid[use]
+        spread = 1.4826 * float(np.median(np.abs(r_use - np.median(r_use)))) if len(r_use) else 1.0
+        widen = max(spread, 1.0)
+        bad = good & ((resid > clip[0] * widen) | (resid < -clip[1] * widen))
         if grow:   # grown by `grow` pixels each side (a 1-D binary dilation)
             bad = maximum_filter1d(bad.view(np.uint8), size=2 * grow + 1).view(bool) & good
         updated = good & ~bad
@@ -152,7 +182,7 @@ def fit_continuum(y, sigma, good, *, knot_px=60, clip=(3.0, 3.0), iterations=10,
         if updated.sum() < max(8, 0.2 * good.sum()):
             cont = new
             break
-        converged = np.array_equal(updated, use)
+        converged = np.array_equal(updated, use) and widen == 1.0
         use = updated
         cont = new
         if converged:
