@@ -21,6 +21,7 @@ from scipy.special import voigt_profile, wofz
 __all__ = ["fit_group", "fit_groups", "GroupProblem", "GAUSS_FWHM"]
 
 GAUSS_FWHM = 2.0 * np.sqrt(2.0 * np.log(2.0))
+MAX_VOIGT_COMPONENTS = 3    # larger blends stay Gaussian: a joint Voigt fit of more is ill-posed
 
 
 def _covariance(res, n_par, J=None):
@@ -95,6 +96,7 @@ def fit_groups(problems, *, try_voigt=True):
             dof = max(len(problems[k].x) - 3 * len(comps) - 2, 1)
             excess = (comps[0]["chi2_red"] - 1.0) * np.sqrt(dof / 2.0)
             if background[k] is not None and comps[0]["ok"] and excess > 3.0 \
+                    and len(comps) <= MAX_VOIGT_COMPONENTS \
                     and strong:
                 v = _fit_voigt(problems[k], comps, background[k])
                 if v is not None:
@@ -178,7 +180,7 @@ def _gauss_fj(xs, r, inv, p, ncomp):
     return (model - r) * inv, J * inv[:, :, None]
 
 
-def _lm_batch(xs, r, inv, q0, m2, ncomp, max_iter=200, ftol=1e-8, xtol=1e-8):
+def _lm_batch(xs, r, inv, q0, m2, ncomp, max_iter=100, ftol=1e-8, xtol=1e-8):
     """Levenberg-Marquardt on a stack of independent least-squares problems.
 
     Each problem keeps its own damping (Marquardt's diag(J^T J) scaling, the
@@ -315,7 +317,7 @@ def _fit_voigt(pr, gauss, bg):
 
     try:
         res = least_squares(fun, np.clip(p0, lo, hi), jac=jac, bounds=(lo, hi), x_scale="jac",
-                            max_nfev=100 * len(p0))
+                            max_nfev=30 * len(p0))
     except (ValueError, np.linalg.LinAlgError):
         return None
     chi2_v = float(np.sum(res.fun ** 2))

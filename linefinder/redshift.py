@@ -183,10 +183,10 @@ def _missing_lines(s, y, sy, w, x, strength, fi, lj, used_l, window, tol, fwhm_l
     detection S/N).  A line within one resolution element (`fwhm_ln`) of a
     feature or of a matched line counts as seen (it would be blended), and a
     line within two of another line of its series is not predicted at all.
-    Returns (indices, total cost).
+    Returns (indices, cost of each).
     """
     if window is None or not len(fi):
-        return [], 0.0
+        return [], np.zeros(0)
     snr = np.expm1(w[fi])
     if group is None:
         group = np.zeros(len(x), dtype=int)
@@ -218,8 +218,8 @@ def _missing_lines(s, y, sy, w, x, strength, fi, lj, used_l, window, tol, fwhm_l
     seen = _within(np.sort(y), xo[inside], tol_ln) | _within(np.sort(xo[lj]), xo[inside],
                                                                max(fwhm_ln, 1e-12))
     missing = [int(j) for j in inside[~seen]]
-    cost = float(np.sum(MISSING_COST * np.minimum((pred[~seen] - MISSING_SNR) / 1.5, 4.0)))
-    return missing, cost
+    costs = MISSING_COST * np.minimum((pred[~seen] - MISSING_SNR) / 1.5, 4.0)
+    return missing, costs
 
 
 RANDOM_FLUX_SIGMA = np.log(30.0)   # scatter of ln(flux) of unrelated features (rule of thumb)
@@ -338,14 +338,31 @@ def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterati
             # supports it explains nothing: the feature is left to something else
             net = gains + terms
             worst = int(np.argmin(net))
-            if len(pairs) <= 2 or net[worst] >= 0:
-                break
-            banned.add(pairs[worst])
-            used_l.discard(pairs[worst][1])
-            del pairs[worst]
+            if len(pairs) > 2 and net[worst] < 0:
+                banned.add(pairs[worst])
+                used_l.discard(pairs[worst][1])
+                del pairs[worst]
+                continue
+            missing, costs = _missing_lines(s_new, y, sy, w, x, strength, fi, lj, used_l, window,
+                                            tol, fwhm_ln, group)
+            # likewise a series whose absent lines cost more than its matches gain is not
+            # there: its matches are given up (the features stay unexplained), rather than
+            # the series sinking the whole solution
+            g_of = np.zeros(len(x), dtype=int) if group is None else group
+            g_miss = g_of[np.asarray(missing, dtype=int)]
+            bad = [g for g in set(g_miss.tolist())
+                   if costs[g_miss == g].sum() > net[g_of[lj] == g].sum()]
+            if bad and len(pairs) > 2:
+                drop = [k for k, (i, j) in enumerate(pairs) if g_of[j] in bad]
+                if len(drop) < len(pairs):
+                    for k in sorted(drop, reverse=True):
+                        banned.add(pairs[k])
+                        used_l.discard(pairs[k][1])
+                        del pairs[k]
+                    continue
+            break
         score = float(np.sum(gains) - np.max(gains))   # the first line is free
-        missing, cost = _missing_lines(s_new, y, sy, w, x, strength, fi, lj, used_l, window, tol,
-                                       fwhm_ln, group)
+        cost = float(np.sum(costs))
         score -= cost
         if flux is not None and len(fi) >= 2:
             score += float(np.sum(terms)) - norm
