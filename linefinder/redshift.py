@@ -29,7 +29,8 @@ Status:
   20 % of the score), in nats (an alternative competes when it explains at
   least 30 % of the same features; one built on other features may be a
   second system);
-* ``tentative``: 2 or more matched lines with positive evidence, short of that;
+* ``tentative``: 2 or more matched lines with a score of at least 3 nats
+  (a likelihood ratio of about 20), short of that;
 * ``none``: otherwise.
 The thresholds were set on this tool's synthetic suite (benchmarks/); they
 are rules of thumb of this tool (common practice in spirit: a z resting on
@@ -76,6 +77,7 @@ def _nearest(sorted_x, values):
 
 LINE_FRACTION = 0.5
 SECURE_SCORE = 8.0     # nats of evidence beyond the first line
+TENTATIVE_SCORE = 3.0  # nats (a likelihood ratio of ~20): weaker evidence is no redshift at all
 SECURE_MARGIN = 5.0    # nats over the best alternative (a likelihood ratio of ~150)
 MISSING_COST = 1.0
 
@@ -394,7 +396,7 @@ def classify(solutions):
     clear = margin >= max(SECURE_MARGIN, 0.2 * best.score)
     if best.n_lines >= 3 and good_fit and clear and best.score >= SECURE_SCORE:
         status = "secure"
-    elif best.n_lines >= 2 and best.score > 0:
+    elif best.n_lines >= 2 and best.score >= TENTATIVE_SCORE:
         status = "tentative"
     else:
         status = "none"
