@@ -48,6 +48,15 @@ def test_isotope_shift_halpha():
     assert (h - d).to_value(u.AA) == pytest.approx(1.79, abs=0.01)
 
 
+def test_deuterium_lyman_alpha():
+    # D Ly-alpha 1215.339 Å and H Ly-alpha 1215.670 Å, vacuum multiplet centres (NIST ASD
+    # strong-line values, from memory to the digits shown)
+    t = build_catalogue(["H", "D"], 1, 2)
+    lam = dict(zip(t["species"], t["wavelength_vacuum"].to_value(u.AA)))
+    assert lam["D I"] == pytest.approx(1215.339, abs=2e-3)
+    assert lam["H I"] == pytest.approx(1215.670, abs=2e-3)
+
+
 def test_radio_h109alpha():
     # H109α = 5008.923 MHz (Lilley & Palmer 1968, ApJS 16, 143)
     t = build_catalogue("H", 109, 110)
