@@ -365,6 +365,7 @@ def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorpt
     cont_all = np.full(len(y_all), np.nan)
     rows = []
     estimated_widths = []
+    spike_pixels = []       # single-pixel spikes masked before the search (cosmic rays)
     for lo, hi in segs:
         y = y_all[lo:hi]
         x = x_all[lo:hi]
@@ -380,7 +381,8 @@ def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorpt
         else:
             fwhm_px = DEFAULT_FWHM_PX
         fwhm_px = max(fwhm_px, 1.0)
-        seg_rows, cont = _segment(x, y, sig, good, dx, fwhm_px, snr, kinds, knot_px, lo)
+        seg_rows, cont, seg_spikes = _segment(x, y, sig, good, dx, fwhm_px, snr, kinds, knot_px, lo)
+        spike_pixels.extend(seg_spikes)
         if not R:
             narrow = [f["fwhm"] / dx[f["pixel"] - lo] for f in seg_rows
                       if f["group"] == 1 and f["snr"] > 10 and "poor_fit" not in f["flags"]]
@@ -402,7 +404,8 @@ def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorpt
                        "unit": str(spec.axis.unit), "noise_source": noise_source,
                        "resolution": R, "resolution_source": res_source or "default 3-pixel FWHM",
                        "snr_threshold": snr, "eqw_convention": EQW_CONVENTION,
-                       "n_pixels": len(y_all), "n_masked": int(spec.mask.sum())})
+                       "n_pixels": len(y_all), "n_masked": int(spec.mask.sum()),
+                       "spike_pixels": spike_pixels})
     return FeatureResult(features=table, spectrum=spec, continuum=cont_all, noise=sig_all,
                          meta=dict(table.meta))
 
@@ -650,7 +653,7 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
                      "kind": "emission" if fit["amplitude"] > 0 else "absorption",
                      "eqw": eqw, "eqw_err": eqw_err, "continuum": c, "pixel": ipx + offset,
                      "group": g["group"]})
-    return rows, cont
+    return rows, cont, (np.flatnonzero(spikes) + offset).tolist()
 
 
 def _table(rows, spec, cont_all, kinds):

@@ -60,6 +60,57 @@ def summary(result, *, unit=None):
                                                            if k != "catalogue"}}
 
 
+def _zoom(axz, result, sel, unit, title, max_lines=8):
+    """Velocity stack of one identified series: each line's neighbourhood, continuum
+    normalised and scaled to its own peak (emission up, absorption down), offset, against
+    velocity from its position at the solution."""
+    fr, f = result.feature_result, result.features
+    sp = fr.spectrum
+    x, y, good = sp.axis.value, sp.flux.value, ~sp.mask
+    sel = sorted(sel, key=lambda i: -float(f["snr"][i]))[:max_lines]
+    sel = sorted(sel, key=lambda i: f["center"][i].value)
+    fwhm_kms = [abs(float((f["fwhm"][i] / f["center"][i]).to_value(u.one))) * C_KMS for i in sel]
+    span = max(300.0, 5 * float(np.nanmax(fwhm_kms))) if fwhm_kms else 300.0
+    with np.errstate(invalid="ignore", divide="ignore"):
+        norm = np.where(good, y / fr.continuum, np.nan)
+    for k, i in enumerate(sel):
+        c = f["center"][i].to_value(unit, equivalencies=u.spectral())
+        # the line's predicted position: observed centre less its residual
+        c0 = c / (1 + float(f["residual_kms"][i]) / C_KMS)
+        v = (x / c0 - 1) * C_KMS if unit.is_equivalent(u.m) else (c0 / x - 1) * C_KMS
+        m = np.abs(v) < span
+        core = np.abs(v) < max(fwhm_kms[k], 1e-6)
+        peak = np.nanmax(np.abs(norm[core] - 1)) if np.any(core & np.isfinite(norm)) else 1.0
+        peak = peak if np.isfinite(peak) and peak > 0 else 1.0
+        axz.plot(v[m], (norm[m] - 1) / peak * 0.8 + k, lw=0.7, color="k")
+        axz.axhline(k, color="tab:orange", lw=0.5)
+        axz.annotate(str(f["label"][i]), (span * 0.97, k + 0.1), fontsize=6.5, ha="right",
+                     color="tab:blue")
+    axz.axvline(0, color="tab:blue", lw=0.6, alpha=0.6)
+    axz.set_xlim(-span, span)
+    axz.set_xlabel("velocity from the solution [km/s]", fontsize=7)
+    axz.set_ylabel("flux / continuum − 1\n(scaled to each peak)", fontsize=7)
+    axz.set_title(f"{title}: velocity stack", fontsize=8)
+    axz.tick_params(labelsize=7)
+
+
+def _label_tiers(centres, xlim, min_sep=0.013, n_tiers=3):
+    """Tier (0 = top) for each label so that labels closer than `min_sep` of the axis
+    width are stacked down instead of printed over each other."""
+    lo, hi = xlim
+    width = (hi - lo) or 1.0
+    order = np.argsort(centres)
+    last = [-np.inf] * n_tiers
+    tiers = np.zeros(len(centres), dtype=int)
+    for i in order:
+        xf = (centres[i] - lo) / width
+        free = [t for t in range(n_tiers) if xf - last[t] >= min_sep]
+        t = free[0] if free else int(np.argmin(last))
+        tiers[i] = t
+        last[t] = xf
+    return tiers
+
+
 def _plot(result, path_png, path_svg):
     import matplotlib
 
@@ -70,8 +121,8 @@ def _plot(result, path_png, path_svg):
     f = result.features
     series = sorted({(str(s), str(r)) for s, r, l in zip(f["species"], f["series"], f["label"]) if l})[:4]
     nz = max(len(series), 1)
-    fig = plt.figure(figsize=(12, 7.5))
-    gs = fig.add_gridspec(3, nz, height_ratios=[3, 1, 2], hspace=0.45)
+    fig = plt.figure(figsize=(12, 10))
+    gs = fig.add_gridspec(4, nz, height_ratios=[3, 1, 2, 1.6], hspace=0.55)
     ax = fig.add_subplot(gs[0, :])
     axr = fig.add_subplot(gs[1, :], sharex=ax)
     unit = f["center"].unit if len(f) else u.AA
@@ -90,13 +141,24 @@ def _plot(result, path_png, path_svg):
         axr.axhline(0, color="tab:orange", lw=0.8)
         axr.set_ylabel("(data − cont.)/σ")
         unit = sp.axis.unit
-    for i in range(len(f)):
-        c = f["center"][i].to_value(unit, equivalencies=u.spectral())
+    if fr is not None:
+        spikes = np.asarray(fr.meta.get("spike_pixels", []), dtype=int)
+        if len(spikes):
+            ax.plot(x[spikes], y[spikes], "x", color="tab:red", ms=6,
+                    label="masked spike (cosmic ray)")
+        top = np.nanmax(np.where(good, y + sig, np.nan)) if good.any() else 1.0
+        bottom = np.nanmin(np.where(good, y - sig, np.nan)) if good.any() else 0.0
+        # headroom above the data for the line labels
+        ax.set_ylim(bottom - 0.05 * (top - bottom), top + 1.3 * (top - bottom))
+    centres = [f["center"][i].to_value(unit, equivalencies=u.spectral()) for i in range(len(f))]
+    tiers = _label_tiers(centres, ax.get_xlim())
+    for i, c in enumerate(centres):
         color = "tab:blue" if f["label"][i] else ("tab:purple" if f["user_line"][i] else "tab:red")
         ax.axvline(c, color=color, lw=0.6, alpha=0.5)
         name = f["label"][i] or f["user_line"][i] or "?"
-        ax.annotate(name, (c, 1.0), xycoords=("data", "axes fraction"), rotation=90, fontsize=7,
-                    ha="right", va="top", color=color)
+        ax.annotate(name, (c, 1.0 - 0.2 * tiers[i]), xycoords=("data", "axes fraction"),
+                    rotation=90, fontsize=7, ha="center", va="top", color=color,
+                    bbox={"fc": "white", "ec": "none", "alpha": 0.7, "pad": 0.5})
     if result.z is not None and len(result.lines):
         obs = (result.lines["wavelength_vacuum"] * (1 + result.z))
         if result.meta.get("medium") == "air" and unit.is_equivalent(u.m):
@@ -123,10 +185,12 @@ def _plot(result, path_png, path_svg):
     ax.set_ylabel("flux")
     ztxt = f"z = {result.z:.6f} ± {result.z_err:.1e}" if result.z is not None else "no redshift"
     ax.set_title(f"{result.meta.get('source', '')}  {ztxt}  status: {result.status}", fontsize=10)
-    ax.legend(fontsize=7, loc="upper left")
+    ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.005, 1.0), borderaxespad=0.0)
     for k, (spn, ser) in enumerate(series):
-        axz = fig.add_subplot(gs[2, k])
         sel = [i for i in range(len(f)) if f["species"][i] == spn and f["series"][i] == ser]
+        if fr is not None:
+            _zoom(fig.add_subplot(gs[2, k]), result, sel, unit, f"{spn} {ser}")
+        axz = fig.add_subplot(gs[3, k])
         vel = np.array([f["residual_kms"][i] for i in sel])
         labels = [str(f["label"][i]) for i in sel]
         errs = []
@@ -138,7 +202,7 @@ def _plot(result, path_png, path_svg):
         axz.axhline(0, color="0.5", lw=0.8)
         axz.set_xticks(range(len(sel)))
         axz.set_xticklabels(labels, rotation=90, fontsize=7)
-        axz.set_title(f"{spn} {ser}", fontsize=8)
+        axz.set_title(f"{spn} {ser}: position residuals", fontsize=8)
         axz.set_ylabel("residual [km/s]", fontsize=7)
     fig.savefig(path_png, dpi=110, bbox_inches="tight")
     fig.savefig(path_svg, bbox_inches="tight")

@@ -119,3 +119,14 @@ def test_telluric_mask_is_separate_from_sky_mask(capsys):
     assert res.features["label"][ha[0]] == "Hα"
     masked = identify(spec, mask_sky=True, mask_telluric=True)
     assert masked.features["label"][ha[0]] == ""
+
+
+def test_report_label_tiers_and_spike_record():
+    from linefinder.report import _label_tiers
+
+    # labels closer than the minimum separation are stacked, distant ones stay on top
+    assert list(_label_tiers([100.0, 100.5, 101.0, 500.0], (0.0, 1000.0))) == [0, 1, 2, 0]
+    # the bundled galaxy's cosmic-ray pixel is masked before the search and recorded
+    truth = json.loads(sample_path("emission_galaxy.fits.truth.json").read_text())
+    res = find_features(read_input(sample_path("emission_galaxy.fits")))
+    assert truth["cosmic_ray_pixel"] in res.meta["spike_pixels"]
