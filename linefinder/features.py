@@ -563,8 +563,11 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
                                     exclude=exclude, clip=(3.5, 1.5), iterations=20)
         else:
             exclude, longest = _exclusion(feats, n, lambda f: f["fwhm_px"])
-            knots = max(base_knots, 1.2 * longest)
-            cont, _ = fit_continuum(y, sig, good, knot_px=min(knots, max(n // 2, 8)), exclude=exclude)
+            # knots tied to the widths the lines actually have (velocity widths can be many
+            # resolution elements): a spline that can follow a line eats the undetected ones
+            typical = float(np.median([f["fwhm_px"] for f in feats]))
+            knots = max(base_knots, 12 * typical, 1.2 * longest)
+            cont, _ = fit_continuum(y, sig, good, knot_px=min(knots, max(n // 3, 8)), exclude=exclude)
     r = y - cont
     feats = []
     model = np.zeros(n)
