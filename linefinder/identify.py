@@ -27,7 +27,7 @@ from .contaminants import sky_mask
 from .doppler import C_KMS
 from .matching import CASE_B_HBETA, assign
 from .medium import air_to_vacuum
-from .redshift import classify, refine, search_shift
+from .redshift import classify, refine, search_shift, solution_probability
 
 __all__ = ["identify", "Identification", "default_species", "read_line_list"]
 
@@ -336,6 +336,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     strength_assign = _defer_to_primary(x, strength, line_weight < 1, 1.0 / R)
     strength_all = np.concatenate([strength_assign, np.ones(len(x_user))])
     blend = np.array(["blend" in str(f) for f in feats["flags"]], dtype=bool)
+    fwhm_feat = _width_ln(feats)
     group_all = np.concatenate([np.asarray(group, dtype=str),
                                 np.array([f"user|{k}" for k in range(len(x_user))], dtype=str)])
     s_user = best_s if best_s is not None else 0.0
@@ -343,6 +344,10 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
         idx = np.flatnonzero(use)
         res = assign(y[idx], sy[idx], flux_abs[idx], blend[idx], x_all, strength_all, group_all,
                      best_s)
+        # a label is as likely as its line at this z times this z itself (1 when fixed)
+        res.score = res.score * (1.0 if z is not None else solution_probability(sols))
+        _primary_in_blends(out, idx, res, y[idx], sy[idx], fwhm_feat[idx], best_s, x,
+                           line_weight < 1)
         _fill(out, idx, res, cat, y[idx], best_s, extra_lines)
     elif extra_lines and len(feats):
         # no hydrogenic solution: the user's lines are still matched at the rest frame (or z)
@@ -370,6 +375,8 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                 systems.append(more[0])
                 res2 = assign(y[rest], sy[rest], flux_abs[rest], blend[rest], x, strength_assign,
                               group, more[0].s)
+                _primary_in_blends(out, rest, res2, y[rest], sy[rest], fwhm_feat[rest],
+                                   more[0].s, x, line_weight < 1)
                 _fill(out, rest, res2, cat, y[rest], more[0].s, None, system=2)
     result = Identification(features=out, status=status, solutions=sols, lines=cat,
                             feature_result=feature_result, systems=systems)
@@ -392,6 +399,42 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                    "telluric_masked": bool(mask_telluric),
                    "constants": cat.meta.get("constants"), "catalogue": dict(cat.meta)}
     return result
+
+
+def _width_ln(feats):
+    """Feature FWHM in ln(axis) units (|FWHM / centre|), 0 where unknown."""
+    if not len(feats):
+        return np.zeros(0)
+    c = np.abs(np.asarray(u.Quantity(feats["center"]).value, dtype=float))
+    w = np.abs(np.asarray(u.Quantity(feats["fwhm"]).to_value(feats["center"].unit), dtype=float))
+    return np.nan_to_num(np.divide(w, c, out=np.zeros_like(w), where=c > 0), nan=0.0)
+
+
+def _primary_in_blends(out, idx, res, y, sy, fwhm_ln, s, x, secondary):
+    """A feature given a secondary-species line although primary-species lines lie
+    within its half width is a blend of the primary series (the crowded Lyman or
+    Balmer lines below a series limit, which the one-line-one-feature rule has used
+    up): it takes the nearest primary line and the flag ``blend``."""
+    if not len(x) or not np.any(secondary):
+        return
+    prim = np.flatnonzero(~secondary)
+    order = prim[np.argsort(x[prim])]
+    xs = x[order]
+    for k in range(len(idx)):
+        j = int(res.best[k])
+        if j < 0 or j >= len(x) or not secondary[j]:
+            continue
+        rest = y[k] - s
+        lo, hi = np.searchsorted(xs, [rest - fwhm_ln[k] / 2, rest + fwhm_ln[k] / 2])
+        if hi <= lo:
+            continue
+        near = order[lo:hi]
+        jj = int(near[np.argmin(np.abs(x[near] - rest))])
+        res.best[k] = jj
+        res.resid[k] = (rest - x[jj]) / sy[k] if sy[k] > 0 else np.nan
+        i = idx[k]
+        if "blend" not in out["flags"][i]:
+            out["flags"][i] = ",".join(p for p in (out["flags"][i], "blend") if p)
 
 
 def _defer_to_primary(x, strength, secondary, fwhm_ln, factor=0.1):

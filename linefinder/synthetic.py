@@ -78,8 +78,9 @@ def _emission_strength(nl, nu, rel):
     return CASE_B_HBETA[last] * rel[(nl, nu)] / rel[last]
 
 
-def _grid(rng, lam_center, R):
-    span = min(np.log(2.8), MAX_PIXELS / (PIXELS_PER_FWHM * R))
+def _grid(rng, lam_center, R, max_pixels=MAX_PIXELS):
+    """Log-linear grid over a factor 2.8 in wavelength, or what `max_pixels` allow at R."""
+    span = min(np.log(2.8), max_pixels / (PIXELS_PER_FWHM * R))
     lo = np.log(lam_center) - rng.uniform(0.1, 0.9) * span
     lo = np.clip(lo, np.log(WINDOW_AA[0]), np.log(WINDOW_AA[1]) - span)
     dlog = 1.0 / (PIXELS_PER_FWHM * R)
@@ -107,8 +108,13 @@ def _add_contaminants(rng, lam, flux, dlog, truth, sigma):
 
 
 def make_spectrum(rng, *, z, snr, resolution, kind="emission", velocity_fwhm_kms=None,
-                  contaminants=True, other_lines=True):
-    """One synthetic spectrum and its truth (see the module docstring)."""
+                  contaminants=True, other_lines=True, max_pixels=MAX_PIXELS):
+    """One synthetic spectrum and its truth (see the module docstring).
+
+    The grid covers a factor 2.8 in wavelength (e.g. 3500-9800 Å, a survey
+    spectrograph or a merged echelle) unless `max_pixels` at resolving power
+    R limits it to less (the default keeps spectra small for tests).
+    """
     R = float(resolution)
     cat = _hydrogen_lines(z)
     if kind == "absorption":
@@ -121,7 +127,7 @@ def make_spectrum(rng, *, z, snr, resolution, kind="emission", velocity_fwhm_kms
     rank = np.asarray(cat["n_upper"]) - np.asarray(cat["n_lower"])
     pref = 1.0 / rank ** 1.5
     anchor = cat[int(rng.choice(len(cat), p=pref / pref.sum()))]
-    lam, dlog = _grid(rng, anchor["wavelength_vacuum"].to_value(u.AA), R)
+    lam, dlog = _grid(rng, anchor["wavelength_vacuum"].to_value(u.AA), R, max_pixels)
     x = np.log(lam)
     sigma = 1.0
     vfwhm = velocity_fwhm_kms if velocity_fwhm_kms is not None else float(rng.uniform(0, 250))
@@ -226,10 +232,11 @@ def _crb_shift(x, truth, s_ln, sigma):
     return float(np.sqrt(max(cov[0, 0], 0.0)) / scale[0])
 
 
-def make_noise_spectrum(rng, *, resolution, contaminants=True):
+def make_noise_spectrum(rng, *, resolution, contaminants=True, max_pixels=MAX_PIXELS):
     """Pure noise on a flat continuum (with sky residuals and spikes if asked)."""
     R = float(resolution)
-    lam, dlog = _grid(rng, float(np.exp(rng.uniform(np.log(3500.0), np.log(20000.0)))), R)
+    lam, dlog = _grid(rng, float(np.exp(rng.uniform(np.log(3500.0), np.log(20000.0)))), R,
+                      max_pixels)
     flux = np.full(len(lam), 5.0)
     truth = {"z": None, "kind": "noise", "resolution": R, "lines": [], "other": [], "sky": [],
              "spikes": [], "n_pixels": len(lam)}
