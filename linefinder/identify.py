@@ -84,6 +84,17 @@ def _group_keys(cat):
                        np.asarray(cat["series"]).astype(str))
 
 
+def _multiplet_codes(cat):
+    """An integer per line naming its multiplet (species, n_lower, n_upper): the
+    fine-structure components of one line share it."""
+    if not len(cat):
+        return np.zeros(0, dtype=int)
+    key = np.char.add(np.char.add(np.asarray(cat["species"]).astype(str), "|"),
+                      np.char.add(np.asarray(cat["n_lower"]).astype(str),
+                                  np.char.add("-", np.asarray(cat["n_upper"]).astype(str))))
+    return np.unique(key, return_inverse=True)[1]
+
+
 def _thin(cat):
     """Optically thin g_u A / lambda of every line (proportional to g_u A h nu)."""
     return np.asarray(cat["g_upper"] * cat["a_ul"].to_value(u.s ** -1)
@@ -300,11 +311,13 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     cat, strength, group = cat[keep], strength[keep], group[keep]
     group_codes = np.unique(group, return_inverse=True)[1] if len(group) else np.zeros(0, int)
     line_weight = np.where(_is_primary(cat), 1.0, 0.5) if len(cat) else np.zeros(0)
+    multiplet = _multiplet_codes(cat)
     x = np.log(cat["wavelength_vacuum"].to_value(u.m)) if len(cat) else np.zeros(0)
     y = np.log(lam) if len(lam) else np.zeros(0)
     snr_arr = np.asarray(feats["snr"], dtype=float) if len(feats) else np.zeros(0)
     w = np.log1p(np.clip(np.nan_to_num(snr_arr, nan=5.0), 0, 1e4))
     use = ~((sky & mask_sky) | (telluric & mask_telluric))
+    fwhm_feat = _width_ln(feats)
     s_lo, s_hi = np.log1p(zmin), np.log1p(zmax)
     anchors = np.flatnonzero(strength >= 0.02)
     window = _observed_window(feature_result, y)
@@ -318,11 +331,13 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                             anchors=anchors if len(anchors) else None, window=window,
                             flux=flux_abs[use], intensity_sigma=isig, fwhm_ln=1.0 / R,
                             group=group_codes, line_weight=line_weight, sy_fit=sy_meas[use],
-                            s_floor=calibration)
+                            s_floor=calibration, multiplet=multiplet,
+                            half_width=fwhm_feat[use] / 2)
         sols = [_reindex(s, np.flatnonzero(use)) for s in sols]
     else:
         sol = refine(np.log1p(z), y[use], sy[use], w[use], x, strength, np.ones(len(x), bool),
-                     window=window, fwhm_ln=1.0 / R, group=group_codes, line_weight=line_weight)
+                     window=window, fwhm_ln=1.0 / R, group=group_codes, line_weight=line_weight,
+                     multiplet=multiplet, half_width=fwhm_feat[use] / 2)
         sol = _reindex(sol, np.flatnonzero(use))
         sol.s = float(np.log1p(z))
         sols = [sol] if sol.n_lines else []
@@ -336,7 +351,6 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     strength_assign = _defer_to_primary(x, strength, line_weight < 1, 1.0 / R)
     strength_all = np.concatenate([strength_assign, np.ones(len(x_user))])
     blend = np.array(["blend" in str(f) for f in feats["flags"]], dtype=bool)
-    fwhm_feat = _width_ln(feats)
     group_all = np.concatenate([np.asarray(group, dtype=str),
                                 np.array([f"user|{k}" for k in range(len(x_user))], dtype=str)])
     s_user = best_s if best_s is not None else 0.0
@@ -366,7 +380,8 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                                 anchors=anchors if len(anchors) else None, n_solutions=3,
                                 window=window, flux=flux_abs[rest], intensity_sigma=isig,
                                 fwhm_ln=1.0 / R, group=group_codes, line_weight=line_weight,
-                                sy_fit=sy_meas[rest], s_floor=calibration)
+                                sy_fit=sy_meas[rest], s_floor=calibration, multiplet=multiplet,
+                                half_width=fwhm_feat[rest] / 2)
             more = [_reindex(s, rest) for s in more]
             # a second system must stand on its own: secure by the same rules, 4 lines or more,
             # and not the first one again

@@ -122,11 +122,12 @@ def _score(s_values, y, sy, x, strength, kinds_ok, window, tol):
 def search_shift(y, sy, w, x, strength, *, smin, smax, kinds_ok=None, tol=3.0, n_solutions=5,
                  anchors=None, window=None, flux=None,
                  intensity_sigma=np.log(3.0), fwhm_ln=0.0, group=None, line_weight=None,
-                 sy_fit=None, s_floor=0.0):
+                 sy_fit=None, s_floor=0.0, multiplet=None, half_width=None):
     """The best distinct shifts s = ln(1+z) in [smin, smax], best first.
 
     `window` is the observed range (ln lambda) where features could have been
-    found; default the span of the features."""
+    found; default the span of the features.  `multiplet` (per line) and
+    `half_width` (per feature) refine the missing-line test (`_missing_lines`)."""
     if len(y) == 0 or len(x) == 0:
         return []
     if kinds_ok is None:
@@ -156,7 +157,8 @@ def search_shift(y, sy, w, x, strength, *, smin, smax, kinds_ok=None, tol=3.0, n
             break
     sols = [refine(c, y, sy, w, x, strength, kinds_ok, tol=tol, window=window, flux=flux,
                    intensity_sigma=intensity_sigma, fwhm_ln=fwhm_ln, group=group,
-                   line_weight=line_weight, sy_fit=sy_fit, s_floor=s_floor) for c, _ in chosen]
+                   line_weight=line_weight, sy_fit=sy_fit, s_floor=s_floor, multiplet=multiplet,
+                   half_width=half_width) for c, _ in chosen]
     sols = [s for s in sols if s.n_lines > 0]
     # refinement can bring two trial shifts onto one solution: keep the better
     unique = []
@@ -177,8 +179,16 @@ def _within(sorted_vals, x, tol):
     return np.abs(sorted_vals[_nearest(sorted_vals, x)] - x) < tol
 
 
+def _covered(lo, hi, points):
+    """True for each point inside any interval [lo_k, hi_k]."""
+    order = np.argsort(lo)
+    lo_s, reach = lo[order], np.maximum.accumulate(hi[order])
+    k = np.searchsorted(lo_s, points, side="right") - 1
+    return (k >= 0) & (reach[np.maximum(k, 0)] >= points)
+
+
 def _missing_lines(s, y, sy, w, x, strength, fi, lj, used_l, window, tol, fwhm_ln=0.0,
-                   group=None):
+                   group=None, multiplet=None, half_width=None):
     """Lines the solution predicts above the detection limit that no feature explains.
 
     The S/N expected of each catalogue line in the window is its strength times
@@ -187,8 +197,11 @@ def _missing_lines(s, y, sy, w, x, strength, fi, lj, used_l, window, tol, fwhm_l
     S/N p but absent costs MISSING_COST * min((p - 3) / 1.5, 4) nats (the
     feature S/N is that of the profile fit, about half the matched-filter
     detection S/N).  A line within one resolution element (`fwhm_ln`) of a
-    feature or of a matched line counts as seen (it would be blended), and a
-    line within two of another line of its series is not predicted at all.
+    feature or of a matched line, or inside a feature's measured half width
+    (`half_width`, ln units: saturated troughs are broader than the
+    instrument), counts as seen (it would be blended), and a line within two
+    of another line of its series (another multiplet: the fine-structure
+    components of one line, `multiplet`, are not a crowd) is not predicted at all.
     Returns (indices, cost of each).
     """
     if window is None or not len(fi):
@@ -213,6 +226,9 @@ def _missing_lines(s, y, sy, w, x, strength, fi, lj, used_l, window, tol, fwhm_l
             order = sel[np.argsort(xo[inside][sel])]
             xi = xo[inside][order]
             gap = np.diff(xi)
+            if multiplet is not None:
+                mi = multiplet[inside][order]
+                gap = np.where(mi[1:] == mi[:-1], np.inf, gap)
             near_gap = np.minimum(np.concatenate([[np.inf], gap]), np.concatenate([gap, [np.inf]]))
             keep[order[near_gap < 2 * fwhm_ln]] = False
         inside = inside[keep]
@@ -223,6 +239,8 @@ def _missing_lines(s, y, sy, w, x, strength, fi, lj, used_l, window, tol, fwhm_l
     inside, pred = inside[cand], pred[cand]
     seen = _within(np.sort(y), xo[inside], tol_ln) | _within(np.sort(xo[lj]), xo[inside],
                                                                max(fwhm_ln, 1e-12))
+    if half_width is not None and len(y):
+        seen |= _covered(y - half_width, y + half_width, xo[inside])
     missing = [int(j) for j in inside[~seen]]
     costs = MISSING_COST * np.minimum((pred[~seen] - MISSING_SNR) / 1.5, 4.0)
     return missing, costs
@@ -285,7 +303,7 @@ def weighted_shift(d, sigma):
 
 def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterations=3, flux=None,
            intensity_sigma=np.log(3.0), fwhm_ln=0.0, group=None, line_weight=None, sy_fit=None,
-           s_floor=0.0):
+           s_floor=0.0, multiplet=None, half_width=None):
     """Weighted least squares on the lines matched at s0 (one line per feature and vice versa).
 
     Lines are matched and scored with the combined position errors `sy`; the
@@ -350,7 +368,7 @@ def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterati
                 del pairs[worst]
                 continue
             missing, costs = _missing_lines(s_new, y, sy, w, x, strength, fi, lj, used_l, window,
-                                            tol, fwhm_ln, group)
+                                            tol, fwhm_ln, group, multiplet, half_width)
             # likewise a series whose absent lines cost more than its matches gain is not
             # there: its matches are given up (the features stay unexplained), rather than
             # the series sinking the whole solution

@@ -160,23 +160,37 @@ def make_spectrum(rng, *, z, snr, resolution, kind="emission", velocity_fwhm_kms
             # optical lines scale with H-beta (1), UV lines with Ly-alpha (30) in emitters
             base = 30.0 if (band == "uv" and lyman) else 1.0
             others.append((name, obs, base * np.exp(rng.uniform(np.log(lo_f), np.log(hi_f)))))
-    flux = cont.copy()
     norm = np.sqrt(np.sqrt(np.pi) * s_px)
     top = max([*strengths, *(o[2] for o in others), 0.0]) or 1.0
     amp_unit = snr * sigma / norm / top    # the strongest line in the window gets the S/N asked
     sign = 1.0 if kind == "emission" else -1.0
+    if kind == "absorption":
+        # absorption is multiplicative, F = C exp(-sum tau_i g_i): the strongest line is
+        # depth_top deep at its centre, so overlapping lines below a series limit saturate
+        # towards zero flux and never below it
+        depth_top = float(rng.uniform(0.3, 0.95))
+        cont = np.full(len(lam), amp_unit * top / depth_top)
+    flux = cont.copy()
+    tau = np.zeros(len(lam))
     for r, st in zip(inside, strengths):
         a = amp_unit * st
         if a <= 0:
             continue
         c = np.log(r["wavelength_vacuum"].to_value(u.AA))
-        flux += sign * a * _gauss(x, c, s_ln)
-        truth["lines"].append({"label": str(r["label"]), "species": "H I",
-                               "n_lower": int(r["n_lower"]), "n_upper": int(r["n_upper"]),
-                               "observed": float(np.exp(c)), "snr": float(a / sigma * norm),
-                               "crb": float(dlog * sigma / a * np.sqrt(2 * s_px / np.sqrt(np.pi))),
-                               "fwhm_ln": float(fwhm_ln), "kind": kind,
-                               "amplitude": float(sign * a)})
+        line = {"label": str(r["label"]), "species": "H I",
+                "n_lower": int(r["n_lower"]), "n_upper": int(r["n_upper"]),
+                "observed": float(np.exp(c)), "snr": float(a / sigma * norm),
+                "crb": float(dlog * sigma / a * np.sqrt(2 * s_px / np.sqrt(np.pi))),
+                "fwhm_ln": float(fwhm_ln), "kind": kind, "amplitude": float(sign * a)}
+        if kind == "absorption":
+            line["tau"] = float(-np.log1p(-a / cont[0]))   # central optical depth
+            tau += line["tau"] * _gauss(x, c, s_ln)
+        else:
+            flux += a * _gauss(x, c, s_ln)
+        truth["lines"].append(line)
+    if kind == "absorption":
+        flux = cont * np.exp(-tau)
+        truth["continuum"] = float(cont[0])
     for name, obs, st in others:
         a = amp_unit * st
         flux += a * _gauss(x, np.log(obs), s_ln)
@@ -197,7 +211,8 @@ def _crb_shift(x, truth, s_ln, sigma):
     """Cramér-Rao bound of the common shift ln(1+z) for this spectrum's own model.
 
     Parameters: the shift shared by the hydrogen lines, and per line a free
-    amplitude and width; the other lines and sky residuals with free
+    amplitude (optical depth for absorption, whose profile is multiplicative) and
+    width; the other lines and sky residuals with free
     amplitude, centre and width; a linear continuum term.  The bound is
     sqrt((F^-1)_ss) of the Fisher matrix F = J^T J / sigma^2 (white noise).
     Unlike the inverse-variance sum of the isolated-line bounds, it counts
@@ -205,11 +220,21 @@ def _crb_shift(x, truth, s_ln, sigma):
     """
     cols = []
     ds = np.zeros_like(x)
+    absorbing = truth["kind"] == "absorption"
+    # absorption, F = C exp(-T) with T = sum tau_i g_i: dF/dp = -F dT/dp for a line's
+    # parameter p; emission adds amplitude a_i g_i to the continuum
+    t_sum = np.zeros_like(x)
     for line in truth["lines"]:
-        c, a = np.log(line["observed"]), line["amplitude"]
+        c = np.log(line["observed"])
+        a = line["tau"] if absorbing else line["amplitude"]
         g = _gauss(x, c, s_ln)
+        t_sum += a * g
         ds += a * g * (x - c) / s_ln ** 2
         cols += [g, a * g * (x - c) ** 2 / s_ln ** 3]
+    if absorbing:
+        f_line = -truth["continuum"] * np.exp(-t_sum)
+        ds = ds * f_line
+        cols = [col * f_line for col in cols]
     others = [(np.log(o["observed"]), o["amplitude"]) for o in truth["other"]]
     s_sky = PIXELS_PER_FWHM / GAUSS_FWHM * (x[1] - x[0])
     others += [(np.log(o["observed"]), o["amplitude"]) for o in truth["sky"]]
@@ -217,7 +242,8 @@ def _crb_shift(x, truth, s_ln, sigma):
         w = s_ln if k < len(truth["other"]) else s_sky
         g = _gauss(x, c, w)
         cols += [g, a * g * (x - c) / w ** 2, a * g * (x - c) ** 2 / w ** 3]
-    cols += [np.ones_like(x), x - x.mean()]
+    base = np.exp(-t_sum) if absorbing else np.ones_like(x)
+    cols += [base, base * (x - x.mean())]
     J = np.column_stack([ds] + cols) / sigma
     keep = np.any(J != 0, axis=0)
     keep[0] = True
