@@ -575,10 +575,11 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
     # the continuum and the other features are found again: their Lorentzian wings reach
     # far beyond any window and would otherwise bend the continuum and seed false features
     frozen, fixed = [], np.zeros(n)
+    fresh = True      # no model yet (first round, or just after the Voigt lines were frozen)
     for round_ in range(5):
         rr = r - fixed
         split = []
-        if round_ > 0:
+        if not fresh:
             # a wide single component that fits badly is tried as a pair first: its residual
             # would otherwise seed spurious neighbours of the opposite sign
             split = _split_wide(feats, x, rr, sig, good, dx, fwhm_px, n)
@@ -586,7 +587,9 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
                 model = _fit_groups(_groups(feats), x, rr, sig, good, 0, n, dx,
                                     changed={id(f) for f in split})
                 _sync(feats, x, dx, sig)
-        w_round = w if round_ == 0 else _inflated_weights(rr, model, sig, good, w, feats)
+        # (inflated weights need a model: with none, the unfitted lines would inflate their
+        # own local RMS and hide themselves)
+        w_round = w if fresh else _inflated_weights(rr, model, sig, good, w, feats)
         added = _new_feats(_candidates(rr - model, w_round, fwhm_px, threshold, kinds, n,
                                        den_cache if w_round is w else None), feats + frozen)
         feats.extend(added)
@@ -595,7 +598,8 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
                 continue
             break
         model = _fit_groups(_groups(feats), x, rr, sig, good, 0, n, dx,
-                            changed=None if round_ == 0 else {id(f) for f in added})
+                            changed=None if fresh else {id(f) for f in added})
+        fresh = False
         _sync(feats, x, dx, sig)
         for _ in range(2):
             # a line found at a narrower kernel than its width was fitted in too small a
@@ -616,7 +620,7 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
             cont, _ = fit_continuum(y - fixed, sig, good, knot_px=min(knots, max(n // 2, 8)),
                                     exclude=exclude)
             r = y - cont
-            feats, model = [], np.zeros(n)
+            feats, model, fresh = [], np.zeros(n), True
     if frozen:
         # the held features measured last, on the data less everything else found
         _fit_groups(_groups(frozen), x, r - model, sig, good, 0, n, dx)

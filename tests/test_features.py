@@ -153,3 +153,19 @@ def test_spike_on_a_line_is_masked_and_the_line_kept(rng):
     assert "masked" in t["flags"][0]
     assert abs(t["center"][0].value - 4050.0) < 4 * t["center_err"][0].value
     assert t["amplitude"][0].value == pytest.approx(1.0, abs=5 * 0.1 / np.sqrt(3))
+
+
+def test_lines_found_again_after_voigt_lines_are_held_fixed():
+    # an invented Lyman absorber (z = 3.84, R = 1600): the saturated trough below the series
+    # limit is fitted as Voigt and held fixed; every strong isolated Lyman line must still be
+    # detected afterwards (the residual weights must not hide the not-yet-fitted lines)
+    from linefinder.synthetic import make_spectrum, random_parameters
+
+    rng = np.random.default_rng([2, 140, 0])
+    spec, truth = make_spectrum(rng, **random_parameters(rng), max_pixels=150000)
+    fr = find_features(spec)
+    centres = fr.features["center"].to_value(u.AA)
+    strong = [l for l in truth["lines"] if l["label"] in ("Lyα", "Lyβ", "Lyγ", "Lyδ", "Lyε")]
+    assert len(strong) == 5
+    for line in strong:
+        assert np.min(np.abs(centres - line["observed"])) < 1.0, line["label"]
