@@ -20,7 +20,8 @@ Definitions
   widths, overlapping lines included); also printed against the isolated-line
   bounds (S/N >= 3) combined in inverse variance, which ignore overlaps.
 * identification: a true line (S/N >= 6, resolved: no other hydrogen line of
-  the spectrum within 1.5 FWHM, so that it can be measured on its own) is
+  the spectrum within 1.5 FWHM as seen, i.e. of the depth profile for saturated
+  absorption, so that it can be measured on its own) is
   recovered when a feature within
   max(3 sigma, FWHM/2) of it carries its label; a hydrogenic label on a feature
   is correct when a true line with that label lies there.
@@ -130,7 +131,8 @@ def evaluate(results):
             if l["snr"] < 6:
                 continue
             others = obs[obs != l["observed"]]
-            if len(others) and np.min(np.abs(np.log(others / l["observed"]))) < 1.5 * l["fwhm_ln"]:
+            width = l.get("fwhm_obs_ln", l["fwhm_ln"])     # saturated absorption is broader
+            if len(others) and np.min(np.abs(np.log(others / l["observed"]))) < 1.5 * width:
                 conf["H line unresolved from a neighbour (not counted)"] += 1
                 continue
             n_true += 1

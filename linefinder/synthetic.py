@@ -184,6 +184,7 @@ def make_spectrum(rng, *, z, snr, resolution, kind="emission", velocity_fwhm_kms
                 "fwhm_ln": float(fwhm_ln), "kind": kind, "amplitude": float(sign * a)}
         if kind == "absorption":
             line["tau"] = float(-np.log1p(-a / cont[0]))   # central optical depth
+            line["fwhm_obs_ln"] = _saturated_fwhm(line["tau"], s_ln)
             tau += line["tau"] * _gauss(x, c, s_ln)
         else:
             flux += a * _gauss(x, c, s_ln)
@@ -205,6 +206,14 @@ def make_spectrum(rng, *, z, snr, resolution, kind="emission", velocity_fwhm_kms
                         meta={"source": "synthetic", "medium": "vacuum", "medium_source": "synthetic",
                               "resolution": R})
     return spec, truth
+
+
+def _saturated_fwhm(tau, s_ln):
+    """FWHM (ln units) of the depth 1 - exp(-tau g) of a Gaussian optical-depth profile g
+    of width s_ln: where the depth is half its central value.  Saturation broadens it
+    beyond the Gaussian FWHM, to which it tends as tau -> 0."""
+    g_half = -np.log1p(-0.5 * (1 - np.exp(-tau))) / tau
+    return float(2 * s_ln * np.sqrt(-2 * np.log(g_half)))
 
 
 def _crb_shift(x, truth, s_ln, sigma):
