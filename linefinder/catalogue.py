@@ -237,9 +237,9 @@ def build_catalogue(species, lower, upper, *, fine=False, medium="vacuum", a_val
                                       air_conditions=air_conditions,
                                       wavelength_range=wavelength_range, min_a=min_a,
                                       min_intensity=min_intensity, resolution=resolution))
-    columns = {key: np.concatenate([part[key] for part in parts]) for key in parts[0]}
-    order = np.argsort(columns["wavelength_vacuum"], kind="stable")
-    table = _assemble(columns, order, fine=fine, a_values=a_values)
+    if not a_values:   # positions only: the atomic data are not carried into the table
+        parts = [{k: v for k, v in part.items() if k not in _ATOMIC_COLUMNS} for part in parts]
+    table = _assemble(_merged_columns(parts), fine=fine, a_values=a_values)
     if medium == "vacuum":
         table["wavelength"] = table["wavelength_vacuum"]
     elif medium == "air":
@@ -290,7 +290,7 @@ def _species_columns(sp, arrays, *, fine, factor, formula, air_conditions, wavel
     wl_nm, freq_obs, rel, count = wl_nm[keep], freq_obs[keep], rel[keep], count[keep]
     air = vacuum_to_air(wl_nm * u.nm, formula=formula, conditions=air_conditions).to_value(u.nm)
     n = len(wl_nm)
-    cols = {"species": np.full(n, sp.name), "label": arrays["label"], "series": arrays["series"],
+    cols = {"species": np.broadcast_to(np.array(sp.name), (n,)), "label": arrays["label"], "series": arrays["series"],
             "n_lower": arrays["n_lower"].astype(int), "n_upper": arrays["n_upper"].astype(int),
             "wavelength_vacuum": wl_nm, "wavelength_air": air, "frequency": freq_obs,
             "a_ul": arrays["a_ul"], "f_lu": arrays["f_lu"], "g_lower": arrays["g_lower"].astype(int),
@@ -312,39 +312,67 @@ def _species_columns(sp, arrays, *, fine, factor, formula, air_conditions, wavel
     return cols
 
 
-def _assemble(cols, order, *, fine, a_values):
-    """One QTable from the concatenated per-species columns, in wavelength order."""
-    c = {key: val[order] for key, val in cols.items()}
-    n = len(order)
-    t = QTable()
-    for key in ("species", "label", "series", "n_lower"):
-        t[key] = c[key]
+_ATOMIC_COLUMNS = ("a_ul", "f_lu", "line_strength", "rel_intensity")
+
+
+def _merged_columns(parts):
+    """The per-species columns as one set, in wavelength order (stable).
+
+    Each part is written straight to its sorted place: one new array per column
+    instead of a concatenation and a reordering.
+    """
+    sizes = [len(part["wavelength_vacuum"]) for part in parts]
+    ends = np.cumsum(sizes)
+    order = np.argsort(np.concatenate([part["wavelength_vacuum"] for part in parts]), kind="stable")
+    where = np.empty(len(order), dtype=np.intp)
+    where[order] = np.arange(len(order))
+    spans = [where[end - size:end] for size, end in zip(sizes, ends)]
+    out = {}
+    for key in parts[0]:
+        vals = [part[key] for part in parts]
+        col = np.empty(len(order), dtype=np.result_type(*vals))
+        for span, val in zip(spans, vals):
+            col[span] = val
+        out[key] = col
+    return out
+
+
+def _assemble(c, *, fine, a_values):
+    """One QTable from the merged columns, handed over without a further copy."""
+    n = len(c["wavelength_vacuum"])
+    out = {key: c[key] for key in ("species", "label", "series", "n_lower")}
     for which in ("lower", "upper"):
         if which == "upper":
-            t["n_upper"] = c["n_upper"]
+            out["n_upper"] = c["n_upper"]
         if fine:
             mask = c["blend"] > 1
-            t[f"l_{which}"] = MaskedColumn(c[f"l_{which}"], mask=mask)
-            t[f"j_{which}"] = MaskedColumn(c[f"j_{which}"], mask=mask)
+            out[f"l_{which}"] = MaskedColumn(c[f"l_{which}"], mask=mask, copy=False)
+            out[f"j_{which}"] = MaskedColumn(c[f"j_{which}"], mask=mask, copy=False)
         else:
-            t[f"l_{which}"] = MaskedColumn(np.zeros(n, dtype=int), mask=np.ones(n, bool))
-            t[f"j_{which}"] = MaskedColumn(np.zeros(n, dtype=float), mask=np.ones(n, bool))
+            out[f"l_{which}"] = MaskedColumn(np.zeros(n, dtype=int), mask=np.ones(n, bool),
+                                             copy=False)
+            out[f"j_{which}"] = MaskedColumn(np.zeros(n, dtype=float), mask=np.ones(n, bool),
+                                             copy=False)
     freq = c["frequency"]
-    t["wavelength_vacuum"] = c["wavelength_vacuum"] * u.nm
-    t["wavelength_air"] = c["wavelength_air"] * u.nm
-    t["wavenumber"] = freq / K.HZ_PER_CM * u.cm ** -1
-    t["frequency"] = freq * u.Hz
-    t["energy"] = freq / K.HZ_PER_EV * u.eV
+
+    def q(values, unit):
+        return u.Quantity(values, unit, copy=False)
+
+    out["wavelength_vacuum"] = q(c["wavelength_vacuum"], u.nm)
+    out["wavelength_air"] = q(c["wavelength_air"], u.nm)
+    out["wavenumber"] = q(freq / K.HZ_PER_CM, u.cm ** -1)
+    out["frequency"] = q(freq, u.Hz)
+    out["energy"] = q(freq / K.HZ_PER_EV, u.eV)
     if a_values:
-        t["a_ul"] = c["a_ul"] * u.s ** -1
-        t["f_lu"] = c["f_lu"]
-    t["g_lower"] = c["g_lower"]
-    t["g_upper"] = c["g_upper"]
+        out["a_ul"] = q(c["a_ul"], u.s ** -1)
+        out["f_lu"] = c["f_lu"]
+    out["g_lower"] = c["g_lower"]
+    out["g_upper"] = c["g_upper"]
     if a_values:
-        t["line_strength"] = c["line_strength"] * u.C ** 2 * u.m ** 2
-        t["rel_intensity"] = c["rel_intensity"]
-    t["rest_wavelength_vacuum"] = c["rest_wavelength_vacuum"] * u.nm
-    t["blend"] = c["blend"]
+        out["line_strength"] = q(c["line_strength"], u.C ** 2 * u.m ** 2)
+        out["rel_intensity"] = c["rel_intensity"]
+    out["rest_wavelength_vacuum"] = q(c["rest_wavelength_vacuum"], u.nm)
+    out["blend"] = c["blend"]
     if fine:
-        t["transition"] = c["transition"]
-    return t
+        out["transition"] = c["transition"]
+    return QTable(list(out.values()), names=list(out), copy=False)

@@ -57,6 +57,69 @@ def _dirac_f_minus_1(n, twoj, za):
     return np.expm1(-0.5 * np.log1p(x))
 
 
+_CHARGE_MEMO = {}
+
+
+def _charge_terms(n, l, twoj, Z):
+    """The parts of the level shifts that depend on n, l, j and the nuclear charge only
+    (not on the nuclear mass or size), as dimensionless arrays.
+
+    The last few results are kept, so that the isotopes of one element (H, D, T)
+    share them within a catalogue build.
+    """
+    key = (Z, n.tobytes(), l.tobytes(), twoj.tobytes())
+    hit = _CHARGE_MEMO.get(key)
+    if hit is not None:
+        return hit
+    a = K.ALPHA
+    za = Z * a
+    nf = n.astype(float)
+    s = (l == 0).astype(float)
+    kappa = np.where(twoj > 2 * l, -(l + 1), l).astype(float)
+    an = np.where(l == 0, -2 * (np.log(2 / nf) + harmonic(nf) + 1 - 1 / (2 * nf)),
+                  1.0 / np.maximum(l * (l + 1) * (2 * l + 1), 1))
+    lnk0 = bethe_log(n, l)
+    lf = l.astype(float)
+    d60 = np.where(l == 0, 4 * np.log(2) - 3.5,
+                   (3 - lf * (lf + 1) / nf ** 2) * 2 / np.maximum((4 * lf ** 2 - 1) * (2 * lf + 3), 1))
+    ln = np.log(za ** -2)
+    h_vp = (-4 / 15 * s + 5 * np.pi / 48 * za * s - 2 / 15 * za ** 2 * ln * s
+            + g_vp(n, l) * za ** 2
+            + ((19 / 45 - np.pi ** 2 / 27) + (1 / 16 - 31 * np.pi ** 2 / 2880) * np.pi * za) * s * za ** 2)
+    b40 = np.where(l == 0,
+                   1.5 * np.pi ** 2 * np.log(2) - 10 * np.pi ** 2 / 27 - 2179 / 648 - 9 / 4 * ZETA3,
+                   0.0)
+    b62 = np.where(l == 0, 16 / 9 * (71 / 60 - np.log(2) + harmonic(nf - 1) - np.log(nf) - 1 / nf
+                                     + 1 / (4 * nf ** 2)),
+                   np.where(l == 1, 4 / 27 * (nf ** 2 - 1) / nf ** 2, 0.0))
+    out = {
+        "nf": nf, "nf3": nf * nf * nf,   # array ** 3 is a slow general power in numpy
+        "s": s, "kappa": kappa,
+        "fm1": _dirac_f_minus_1(nf, twoj, za),
+        # Salpeter recoil bracket without its mass-dependent last term
+        "salpeter": 1 / 3 * s * np.log(za ** -2) - 8 / 3 * lnk0 - s / 9 - 7 / 3 * an,
+        "d60": d60,
+        "f_se": _se_without_g(n, l, twoj, za) + g_se(n, l, twoj, Z, a) * za ** 2,
+        "magnetic": np.where(l == 0, 0.0, -1.0 / (2 * kappa * (2 * l + 1))),
+        "h_vp": h_vp,
+        "f4": b40 - 21.55447 * s * za - 8 / 27 * s * za ** 2 * ln ** 3 + b62 * za ** 2 * ln ** 2,
+        "b40_mag": np.where(l == 0, 0.0, (np.pi ** 2 / 2 * np.log(2) - np.pi ** 2 / 12 - 197 / 144
+                                          - 0.75 * ZETA3) / (kappa * (2 * l + 1))),
+    }
+    out = {k: np.asarray(v, dtype=float) for k, v in out.items()}
+    for arr in out.values():
+        arr.flags.writeable = False
+    if len(_CHARGE_MEMO) >= 4:
+        _CHARGE_MEMO.pop(next(iter(_CHARGE_MEMO)))
+    _CHARGE_MEMO[key] = out
+    return out
+
+
+def clear_memo():
+    """Forget the kept charge-only terms (benchmarks that time a cold build)."""
+    _CHARGE_MEMO.clear()
+
+
 def shift_terms_hz(species, n, l, j):
     """Every contribution to the binding energy, in Hz, as a dict of arrays."""
     sp = parse_species(species)
@@ -65,59 +128,34 @@ def shift_terms_hz(species, n, l, j):
     twoj = np.rint(2 * np.asarray(j, dtype=float)).astype(np.int64)
     n, l, twoj = np.broadcast_arrays(n, l, twoj)
     _check(n, l, twoj)
-    nf = n.astype(float)
-    nf3 = nf * nf * nf   # array ** 3 is a slow general power in numpy
     a = K.ALPHA
     Z = sp.charge
     za = Z * a
     M = sp.core_mass_me
     r = sp.reduced_mass_ratio
     mc2 = K.ME_C2_HZ
-    s = (l == 0).astype(float)
-    kappa = np.where(twoj > 2 * l, -(l + 1), l).astype(float)
+    c = _charge_terms(n, l, twoj, Z)
+    nf, nf3, s, kappa, fm1 = c["nf"], c["nf3"], c["s"], c["kappa"], c["fm1"]
     terms = {}
-
-    fm1 = _dirac_f_minus_1(nf, twoj, za)
     terms["dirac_reduced_mass"] = mc2 * (r * fm1 - r ** 2 * fm1 ** 2 / (2 * M)
                                          + (1 - s) / (kappa * (2 * l + 1)) * za ** 4 * r ** 3
                                          / (2 * nf3 * M ** 2))
 
-    an = np.where(l == 0, -2 * (np.log(2 / nf) + harmonic(nf) + 1 - 1 / (2 * nf)),
-                  1.0 / np.maximum(l * (l + 1) * (2 * l + 1), 1))
-    lnk0 = bethe_log(n, l)
-    salpeter = (1 / 3 * s * np.log(za ** -2) - 8 / 3 * lnk0 - s / 9 - 7 / 3 * an
-                - s * 2 / (M ** 2 - 1) * (M ** 2 * np.log(1 / r) - np.log(M / r)))
-    lf = l.astype(float)
-    d60 = np.where(l == 0, 4 * np.log(2) - 3.5,
-                   (3 - lf * (lf + 1) / nf ** 2) * 2 / np.maximum((4 * lf ** 2 - 1) * (2 * lf + 3), 1))
+    salpeter = c["salpeter"] - s * 2 / (M ** 2 - 1) * (M ** 2 * np.log(1 / r) - np.log(M / r))
     terms["recoil"] = mc2 * r ** 3 / M * (za ** 5 / (np.pi * nf3) * salpeter
-                                          + za ** 6 / nf3 * d60)
+                                          + za ** 6 / nf3 * c["d60"])
 
     # self-energy: reduced-mass scaling r^3, log argument (m_e/m_r)(Z alpha)^-2 in A41,
     # the magnetic-moment part of A40 scaled by r^2 instead of r^3
     base = a / np.pi * za ** 4 / nf3 * mc2
-    f_se = _se_without_g(n, l, twoj, za) + g_se(n, l, twoj, Z, a) * za ** 2
-    f_se = f_se + 4 / 3 * s * np.log(1 / r)
-    magnetic = np.where(l == 0, 0.0, -1.0 / (2 * kappa * (2 * l + 1)))
-    terms["self_energy"] = base * (r ** 3 * f_se + (r ** 2 - r ** 3) * magnetic)
+    f_se = c["f_se"] + 4 / 3 * s * np.log(1 / r)
+    terms["self_energy"] = base * (r ** 3 * f_se + (r ** 2 - r ** 3) * c["magnetic"])
 
-    ln = np.log(za ** -2)
-    h_vp = (-4 / 15 * s + 5 * np.pi / 48 * za * s - 2 / 15 * za ** 2 * ln * s
-            + g_vp(n, l) * za ** 2
-            + ((19 / 45 - np.pi ** 2 / 27) + (1 / 16 - 31 * np.pi ** 2 / 2880) * np.pi * za) * s * za ** 2)
     muon = -4 / 15 * s / K.MMU_ME ** 2 * (1 + 0.671)   # muon loop plus hadronic (0.671 x muon)
-    terms["vacuum_polarisation"] = base * r ** 3 * (h_vp + muon)
+    terms["vacuum_polarisation"] = base * r ** 3 * (c["h_vp"] + muon)
 
-    b40 = np.where(l == 0,
-                   1.5 * np.pi ** 2 * np.log(2) - 10 * np.pi ** 2 / 27 - 2179 / 648 - 9 / 4 * ZETA3,
-                   0.0)
-    b40_mag = np.where(l == 0, 0.0, (np.pi ** 2 / 2 * np.log(2) - np.pi ** 2 / 12 - 197 / 144
-                                     - 0.75 * ZETA3) / (kappa * (2 * l + 1)))
-    b62 = np.where(l == 0, 16 / 9 * (71 / 60 - np.log(2) + harmonic(nf - 1) - np.log(nf) - 1 / nf
-                                     + 1 / (4 * nf ** 2)),
-                   np.where(l == 1, 4 / 27 * (nf ** 2 - 1) / nf ** 2, 0.0))
-    f4 = (b40 - 21.55447 * s * za - 8 / 27 * s * za ** 2 * ln ** 3 + b62 * za ** 2 * ln ** 2)
-    terms["two_loop"] = (a / np.pi) ** 2 * za ** 4 / nf3 * mc2 * (r ** 3 * f4 + r ** 2 * b40_mag)
+    terms["two_loop"] = (a / np.pi) ** 2 * za ** 4 / nf3 * mc2 * (r ** 3 * c["f4"]
+                                                                  + r ** 2 * c["b40_mag"])
 
     rn = sp.radius_m
     if rn > 0:
@@ -126,10 +164,14 @@ def shift_terms_hz(species, n, l, j):
         rsph = np.sqrt(5 / 3) * rn
         f_ns = np.where(n == 1, 1.380 - 0.162 * za + 1.612 * za ** 2,
                         1.793 - 0.263 * za + 1.812 * za ** 2)
-        e_s = (za ** 2 / (10 * nf) * (1 + za ** 2 * f_ns)
-               * (2 * za * rsph / (nf * lam_c)) ** (2 * gam) * mc2 * r ** 3)
         p12 = ((l == 1) & (twoj == 1)).astype(float) * za ** 2 * (1 - 1 / nf ** 2) / 4
-        terms["nuclear_size"] = e_s * (s + p12)
+        share = s + p12              # only S and p1/2 states shift: the power only for them
+        hit = share != 0
+        size = np.zeros(n.shape)
+        nh = nf[hit]
+        size[hit] = (za ** 2 / (10 * nh) * (1 + za ** 2 * f_ns[hit])
+                     * (2 * za * rsph / (nh * lam_c)) ** (2 * gam) * mc2 * r ** 3) * share[hit]
+        terms["nuclear_size"] = size
     else:
         terms["nuclear_size"] = np.zeros(n.shape)
     return terms

@@ -55,6 +55,29 @@ def line_label(species, n_lower, n_upper, wavelength_conv_angstrom=None):
     return f"{species.name} {int(round(float(wavelength_conv_angstrom)))}"
 
 
+_GREEK_TABLE = np.array([], dtype=str)
+
+
+def _greek_table(top):
+    """`_greek` of 1..top as an array (grown on demand, shared by all calls)."""
+    global _GREEK_TABLE
+    if len(_GREEK_TABLE) < top:
+        _GREEK_TABLE = np.array([_greek(d) for d in range(1, max(top, 2 * len(_GREEK_TABLE)) + 1)])
+    return _GREEK_TABLE
+
+
+def _int_text(values):
+    """Decimal text of non-negative integers; through a lookup table when the values are
+    few distinct small numbers (quantum numbers), which is far cheaper than astype(str)."""
+    values = np.asarray(values, dtype=np.int64)
+    if not len(values):
+        return np.array([], dtype=str)
+    top = int(values.max())
+    if values.min() >= 0 and top < 4 * len(values):
+        return np.arange(top + 1).astype(str)[values]
+    return values.astype(str)
+
+
 def line_labels(species, n_lower, n_upper, wavelength_conv_angstrom):
     """Vectorised `line_label`: the same text, built with array string operations."""
     nl = np.asarray(n_lower, dtype=np.int64)
@@ -63,34 +86,39 @@ def line_labels(species, n_lower, n_upper, wavelength_conv_angstrom):
         return np.array([], dtype=str)
     conv = np.asarray(wavelength_conv_angstrom, dtype=float)
     dn = nu - nl
-    greek = np.array([_greek(d) for d in range(1, int(dn.max()) + 1)])[dn - 1]
-    out = np.empty(len(nl), dtype=object)
+    greek = _greek_table(int(dn.max()))[dn - 1]
     radio = nl >= RADIO_FROM
-    if np.any(radio):
-        out[radio] = np.char.add(np.char.add(species.radio_prefix, nl[radio].astype(str)),
-                                 greek[radio])
-    optical = ~radio
     hydrogen = species.Z == 1 or species.kind == "rydberg"
     if hydrogen and species.kind == "rydberg" and species.symbol != "H":
-        sel = optical
-        out[sel] = np.char.add(np.char.add(species.radio_prefix, nl[sel].astype(str)), greek[sel])
-    elif hydrogen:
+        radio = np.ones(len(nl), dtype=bool)        # Rydberg atoms: radio style throughout
+    # radio style everywhere first, then the optical rows overwritten
+    out = np.char.add(np.char.add(species.radio_prefix, _int_text(nl)), greek)
+    optical = ~radio
+    if not np.any(optical):
+        return _tight(out)
+    out = out.astype(f"<U{max(out.dtype.itemsize // 4, len(species.name) + 8)}")
+    if hydrogen:
         base = species.symbol if species.symbol != "H" else ""
         prefixes = {k: (base if (base and k == 2) else base + v) for k, v in _PREFIX.items()}
         prefix = np.array([prefixes.get(int(k), "") for k in range(RADIO_FROM)])
-        pre = prefix[np.where(optical, nl, 0)]
-        tail = np.where(dn <= 5, greek, nu.astype(str))
-        out[optical] = np.char.add(pre[optical], tail[optical])
-    else:
-        lyman = optical & (nl == 1)
-        out[lyman] = np.char.add(f"{species.name} Ly", greek[lyman])
-        rest = optical & (nl > 1)
-        good = rest & np.isfinite(conv)
-        out[good] = np.char.add(f"{species.name} ", np.rint(conv[good]).astype(np.int64).astype(str))
-        bad = rest & ~np.isfinite(conv)
-        if np.any(bad):
-            out[bad] = [f"{species.name} {u}-{l}" for u, l in zip(nu[bad], nl[bad])]
-    return out.astype(str)
+        o_nl, o_nu, o_dn = nl[optical], nu[optical], dn[optical]
+        tail = np.where(o_dn <= 5, greek[optical], _int_text(o_nu))
+        out[optical] = np.char.add(prefix[o_nl], tail)
+        return _tight(out)
+    lyman = optical & (nl == 1)
+    out[lyman] = np.char.add(f"{species.name} Ly", greek[lyman])
+    rest = optical & (nl > 1)
+    good = rest & np.isfinite(conv)
+    out[good] = np.char.add(f"{species.name} ", _int_text(np.rint(conv[good])))
+    bad = rest & ~np.isfinite(conv)
+    if np.any(bad):
+        out[bad] = [f"{species.name} {u}-{l}" for u, l in zip(nu[bad], nl[bad])]
+    return _tight(out)
+
+
+def _tight(text):
+    """The same strings in the narrowest unicode dtype (table columns copy less)."""
+    return text.astype(f"<U{max(int(np.char.str_len(text).max()), 1)}") if len(text) else text
 
 
 def series_names(n_lower):

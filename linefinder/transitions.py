@@ -24,6 +24,7 @@ import scipy.constants as sc
 
 from . import constants as K
 from .levels import binding_energy_hz
+from .levels import clear_memo as clear_level_memo
 from .radial import dipole_radial_integrals
 from .species import parse_species
 
@@ -47,21 +48,48 @@ class _LevelGrid:
     """Binding energies E[n, l, s] (Hz) of every state a set of lines needs (s: j = l -/+ 1/2)."""
 
     def __init__(self, sp, n_max, l_max):
-        n = np.arange(1, n_max + 1)[:, None, None]
-        l = np.arange(l_max + 1)[None, :, None]
-        side = np.arange(2)[None, None, :]
-        n, l, side = np.broadcast_arrays(n, l, side)
-        valid = (l < n) & ((l > 0) | (side == 1))
+        n, l, twoj, flat = _grid_states(n_max, l_max)
         self.energy = np.full((n_max + 1, l_max + 1, 2), np.nan)
-        twoj = 2 * l[valid] + np.where(side[valid] == 1, 1, -1)
-        self.energy[n[valid], l[valid], side[valid]] = binding_energy_hz(sp, n[valid], l[valid],
-                                                                         twoj / 2.0)
+        self.energy.ravel()[flat] = binding_energy_hz(sp, n, l, twoj / 2.0)
 
     def __call__(self, n, l, twoj):
         return self.energy[n, l, (twoj > 2 * l).astype(np.intp)]
 
 
 _ROW_MEMO = {}
+
+
+def clear_memos():
+    """Forget every in-process result kept between calls (radial rows, multiplet plans,
+    charge-only level terms): what a benchmark of a truly cold build needs."""
+    _ROW_MEMO.clear()
+    clear_level_memo()
+
+
+def _grid_states(n_max, l_max):
+    """The states of a `_LevelGrid` (n, l, 2j and flat index), the same for every species."""
+    key = ("states", n_max, l_max)
+    hit = _ROW_MEMO.get(key)
+    if hit is not None:
+        return hit
+    n = np.arange(1, n_max + 1)[:, None, None]
+    l = np.arange(l_max + 1)[None, :, None]
+    side = np.arange(2)[None, None, :]
+    n, l, side = np.broadcast_arrays(n, l, side)
+    valid = (l < n) & ((l > 0) | (side == 1))
+    n, l, side = n[valid], l[valid], side[valid]
+    out = (n, l, 2 * l + np.where(side == 1, 1, -1), (n * (l_max + 1) + l) * 2 + side)
+    for arr in out:
+        arr.flags.writeable = False
+    _remember(key, out)
+    return out
+
+
+def _remember(key, value):
+    """Keep a species-independent result for the next species (the last few only)."""
+    if len(_ROW_MEMO) >= 8:
+        _ROW_MEMO.pop(next(iter(_ROW_MEMO)))
+    _ROW_MEMO[key] = value
 
 
 def _radial_rows(nu, nl):
@@ -75,9 +103,7 @@ def _radial_rows(nu, nl):
     if hit is not None:
         return hit
     rows = _compute_radial_rows(nu, nl)
-    if len(_ROW_MEMO) >= 8:
-        _ROW_MEMO.pop(next(iter(_ROW_MEMO)))
-    _ROW_MEMO[key] = rows
+    _remember(key, rows)
     return rows
 
 
@@ -98,34 +124,60 @@ def _compute_radial_rows(nu, nl):
 
 
 def _multiplet_plan(nu, nl):
-    """Species-independent part of `multiplets`: per doublet branch, the pair index,
-    flat indices of the upper and lower states in a `_LevelGrid` and the line
-    strength (atomic units).  Kept in the same memo as the radial rows."""
+    """Species-independent part of `multiplets`: per fine-structure component, the pair
+    index, flat indices of the upper and lower states in a `_LevelGrid` and the line
+    strength (atomic units).  Kept in the same memo as the radial rows.
+
+    Built on the dense (pair, l) grid of radial integrals: column l holds the
+    channel upper l -> lower l - 1 (X_l) and upper l - 1 -> lower l (Y_l), each
+    split into its LS doublet components (fractions as in `_doublet_split`).
+    """
     key = ("plan", nu.tobytes(), nl.tobytes())
     hit = _ROW_MEMO.get(key)
     if hit is not None:
         return hit
-    p, lu, ll, rad = _radial_rows(nu, nl)
-    big, split = _doublet_split(lu, ll)
-    shape = (int(nu.max()) + 1, int(lu.max()) + 1, 2)
-    n_u = nu[p]
-    n_l = nl[p]
-    s_row = 2 * big * rad ** 2
-    parts = []
-    for tju, tjl, frac, ok in split:
-        iu = np.ravel_multi_index((n_u[ok], lu[ok], (tju[ok] > 2 * lu[ok]).astype(np.intp)), shape)
-        il = np.ravel_multi_index((n_l[ok], ll[ok], (tjl[ok] > 2 * ll[ok]).astype(np.intp)), shape)
-        parts.append((p[ok], iu, il, (frac * s_row)[ok]))
-    pp, iu, il, s_c = (np.concatenate([q[i] for q in parts]) for i in range(4))
-    m = len(nu)
-    plan = {"pair": pp, "upper": iu, "lower": il, "s": s_c,
-            "sum_s": np.bincount(pp, weights=s_c, minlength=m),
-            "count": np.bincount(pp, minlength=m)}
+    X, Y = dipole_radial_integrals(nu, nl)
+    m, width = X.shape
+    L = width - 1
+    big = np.arange(1, L + 1)[None, :]
+    k = nl[:, None]
+    stride = 2 * (L + 1)             # flat index of (n, l, side) is n * stride + 2 l + side
+    # The six components of column l, in the order (pair, l, component) so that each
+    # pair's components are contiguous.  X_l: upper l -> lower l - 1; Y_l: upper l - 1
+    # -> lower l; the doublet fractions are those of `_doublet_split` with big = l;
+    # side 1 is j = l + 1/2.  Per component: channel, fraction kind, upper (dl, side),
+    # lower (dl, side).
+    chan = np.array([0, 0, 0, 1, 1, 1])
+    kind = np.array([0, 1, 2, 0, 1, 2])
+    du, su = np.array([0, 0, 0, -1, -1, -1]), np.array([1, 0, 0, 1, 1, 0])
+    dl, sl = np.array([-1, -1, -1, 0, 0, 0]), np.array([1, 1, 0, 1, 0, 0])
+    ok = np.empty((m, L, 6), dtype=bool)
+    two = big >= 2                   # j = l - 3/2 on the small side needs l_small >= 1
+    ok[..., 0] = ok[..., 1] = big <= k          # the lower l must exist below n'
+    ok[..., 2] = ok[..., 0] & two
+    ok[..., 3] = ok[..., 4] = big <= k - 1
+    ok[..., 5] = ok[..., 3] & two
+    pp, col, comp = np.nonzero(ok)
+    pp = pp.astype(np.int32)
+    l = col + 1
+    lf = np.arange(L + 1, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        frac = np.array([(lf + 1) / (2 * lf + 1), 1 / ((2 * lf + 1) * (2 * lf - 1)),
+                         (lf - 1) / (2 * lf - 1)])
+    rad = np.stack([X, Y])[chan[comp], pp, l]
+    s_c = frac[kind[comp], l] * (2.0 * l) * rad * rad
+    iu = nu[pp] * stride + 2 * (l + du[comp]) + su[comp]
+    il = nl[pp] * stride + 2 * (l + dl[comp]) + sl[comp]
+    starts = np.flatnonzero(np.diff(pp, prepend=-1))
+    if len(starts) != m:
+        raise AssertionError("every n -> n' pair has an s -> p component")
+    shape = (int(nu.max()) + 1, L + 1, 2)
+    plan = {"pair": pp, "upper": iu, "lower": il, "s": s_c, "starts": starts,
+            "sum_s": np.add.reduceat(s_c, starts),
+            "count": np.diff(np.append(starts, len(pp)))}
     for arr in plan.values():
         arr.flags.writeable = False
-    if len(_ROW_MEMO) >= 8:
-        _ROW_MEMO.pop(next(iter(_ROW_MEMO)))
-    _ROW_MEMO[key] = (shape, plan)
+    _remember(key, (shape, plan))
     return shape, plan
 
 
@@ -193,16 +245,22 @@ def multiplets(species, n_upper, n_lower):
     sp = parse_species(species)
     nu = np.atleast_1d(np.asarray(n_upper, dtype=np.int64))
     nl = np.atleast_1d(np.asarray(n_lower, dtype=np.int64))
-    m = len(nu)
     shape, plan = _multiplet_plan(nu, nl)
     grid = _LevelGrid(sp, shape[0] - 1, shape[1] - 1).energy.ravel()
-    pp, s_c = plan["pair"], plan["s"]
-    freq = grid[plan["upper"]] - grid[plan["lower"]]
-    nu3s = freq * freq * freq * s_c   # not freq ** 3: numpy's general power is slow
+    s_c = plan["s"]
+    # two work arrays, updated in place (a long chain of temporaries costs more than the sums)
+    freq = np.take(grid, plan["upper"])
+    work = np.take(grid, plan["lower"])
+    np.subtract(freq, work, out=freq)
+    starts = plan["starts"]          # each pair's components are contiguous
+    np.multiply(freq, s_c, out=work)
+    sum_nus = np.add.reduceat(work, starts)     # proportional to sum g_l f_l
+    np.multiply(work, freq, out=work)
+    np.multiply(work, freq, out=work)           # nu^3 S (not freq ** 3: slow)
+    sum_nu3s = np.add.reduceat(work, starts)    # proportional to sum g_u A_u
+    np.multiply(work, freq, out=work)
+    sum_nu4s = np.add.reduceat(work, starts)    # for the weighted mean frequency
     sum_s, count = plan["sum_s"], plan["count"]
-    sum_nu3s = np.bincount(pp, weights=nu3s, minlength=m)          # proportional to sum g_u A_u
-    sum_nu4s = np.bincount(pp, weights=nu3s * freq, minlength=m)   # for the weighted mean frequency
-    sum_nus = np.bincount(pp, weights=freq * s_c, minlength=m)     # proportional to sum g_l f_l
     unit = _dipole_unit_si(sp)
     g_u = 2.0 * nu ** 2
     g_l = 2.0 * nl ** 2
