@@ -122,8 +122,10 @@ def evaluate(results):
     n_true = n_rec = n_lab = n_lab_ok = 0
     sec_lab = sec_ok = 0
     zok_true = zok_rec = 0
+    el_true = el_rec = 0
     for r in signal:
         z_right = correct(r)
+        is_eligible = sum(l["snr"] >= 5 for l in r["truth"]["lines"]) >= 3
         feats = r["features"]
         truth_lines = r["truth"]["lines"]
         obs = np.sort([l["observed"] for l in truth_lines])
@@ -137,10 +139,12 @@ def evaluate(results):
                 continue
             n_true += 1
             zok_true += z_right
+            el_true += is_eligible
             near = [f for f in feats if _near(f, l["observed"])]
             if any(f["label"] == l["label"] for f in near):
                 n_rec += 1
                 zok_rec += z_right
+                el_rec += is_eligible
                 conf["H line -> right label"] += 1
             elif not near:
                 conf["H line -> not detected"] += 1
@@ -169,6 +173,8 @@ def evaluate(results):
                 conf["labelled: noise or spike"] += 1
     lines.append(f"identification recall (resolved H lines S/N >= 6): {n_rec}/{n_true} = "
                  f"{100 * n_rec / max(n_true, 1):.1f} % (target >= 95 %)")
+    lines.append(f"  of which in eligible spectra (>= 3 H lines at S/N >= 5, as for the z target): "
+                 f"{el_rec}/{el_true} = {100 * el_rec / max(el_true, 1):.1f} %")
     lines.append(f"  of which in spectra whose z is right: {zok_rec}/{zok_true} = "
                  f"{100 * zok_rec / max(zok_true, 1):.1f} % (without a redshift no line is named)")
     lines.append(f"identification precision (hydrogenic labels): {n_lab_ok}/{n_lab} = "
