@@ -161,9 +161,8 @@ def _multiplet_plan(nu, nl):
     pp = pp.astype(np.int32)
     l = col + 1
     lf = np.arange(L + 1, dtype=float)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        frac = np.array([(lf + 1) / (2 * lf + 1), 1 / ((2 * lf + 1) * (2 * lf - 1)),
-                         (lf - 1) / (2 * lf - 1)])
+    frac = np.array([(lf + 1) / (2 * lf + 1), 1 / ((2 * lf + 1) * (2 * lf - 1)),
+                     (lf - 1) / (2 * lf - 1)])
     rad = np.stack([X, Y])[chan[comp], pp, l]
     s_c = frac[kind[comp], l] * (2.0 * l) * rad * rad
     iu = nu[pp] * stride + 2 * (l + du[comp]) + su[comp]

@@ -47,6 +47,20 @@ def test_component_sums_equal_multiplet():
     assert c["S"].sum() == pytest.approx(m["S"][0], rel=1e-14)
 
 
+@pytest.mark.parametrize("species", ["H", "He II", "Fe XXVI"])
+def test_multiplet_centre_is_weighted_mean_of_components(species):
+    # many pairs in one call (the plan is built for all of them at once), up to n' = 10
+    nl = np.array([1, 2, 3, 6, 10, 10, 4])
+    nu = np.array([2, 3, 40, 7, 11, 300, 5])
+    c = fine_components(species, nu, nl)
+    m = multiplets(species, nu, nl)
+    w = c["g_upper"] * c["A"]
+    centre = np.bincount(c["pair"], weights=w * c["frequency"]) / np.bincount(c["pair"], weights=w)
+    np.testing.assert_allclose(m["frequency"], centre, rtol=1e-14)
+    np.testing.assert_array_equal(m["components"], np.bincount(c["pair"]))
+    np.testing.assert_allclose(m["S"], np.bincount(c["pair"], weights=c["S"]), rtol=1e-13)
+
+
 def test_trk_sum_from_ground_state():
     # Sum of f(1s -> np) over bound states = 0.5650 (Bethe & Salpeter 1957, sec. 61;
     # the continuum carries the remaining 0.4350 of the Thomas-Reiche-Kuhn sum).
