@@ -103,11 +103,24 @@ def _find_peaks(s, height, prominence, distance):
     return idx[peaks]
 
 
+def _narrow_snr(near):
+    """SNR of the narrower candidates a wide one would replace: in quadrature when
+    they are resolved from each other (gaps over twice the widest kernel), else the
+    largest (peaks on one blended profile are not independent evidence)."""
+    if len(near) > 1:
+        px = np.sort([d[0] for d in near])
+        if np.min(np.diff(px)) > 2 * max(d[1] for d in near):
+            return float(np.sqrt(sum(d[2] ** 2 for d in near)))
+    return max(d[2] for d in near)
+
+
 def _candidates(r, w, fwhm_px, threshold, kinds, n, den_cache=None):
     """Peaks of the matched-filter SNR at each kernel width, narrowest first.
 
     A peak at a wider kernel replaces the narrower ones it overlaps only when
-    its SNR is 1.3 times theirs or more (a truly broad feature); otherwise
+    its SNR is 1.3 times theirs or more (a truly broad feature; narrow ones that
+    stand clear of each other count together, in quadrature, so that a row of
+    resolved lines below a series limit is not taken for one broad trough); otherwise
     neighbouring narrow lines keep their own identity (a Gaussian line up to
     about four kernel widths broad is still found at the narrow kernel, with
     >= 70 % of the optimal SNR, and the profile fit finds its real width).
@@ -140,7 +153,7 @@ def _candidates(r, w, fwhm_px, threshold, kinds, n, den_cache=None):
                 bisect.insort(pos, (c[0], id(c), c))
                 widest = max(widest, c[1])
             elif all(np.sign(d[3]) == np.sign(c[3]) and d[1] < c[1] for d in near) and \
-                    c[2] > 1.3 * max(d[2] for d in near):
+                    c[2] > 1.3 * _narrow_snr(near):
                 gone = {id(d) for d in near}
                 pos = [e for e in pos if e[1] not in gone]
                 bisect.insort(pos, (c[0], id(c), c))

@@ -169,3 +169,21 @@ def test_lines_found_again_after_voigt_lines_are_held_fixed():
     assert len(strong) == 5
     for line in strong:
         assert np.min(np.abs(centres - line["observed"])) < 1.0, line["label"]
+
+
+def test_row_of_resolved_absorption_lines_is_not_one_broad_trough(rng):
+    # twelve narrow absorption lines four FWHM apart, as below a series limit at high R: a
+    # wide matched-filter kernel over the row scores more than any one line, but the lines
+    # together score more still, so each is found and measured on its own
+    x = np.arange(7150.0, 7400.0, 0.22)
+    s = 0.3
+    centres = 7255.0 + 3.0 * np.arange(12)
+    y = 67.0 - sum(22.0 * np.exp(-0.5 * ((x - c) / s) ** 2) for c in centres)
+    y = y + rng.normal(0, 1.0, len(x))
+    spec = SpectrumData(x * u.AA, y * u.adu, np.ones(len(x)) * u.adu,
+                        meta={"source": "synthetic", "resolution": 7300 / (GAUSS_FWHM * s)})
+    t = find_features(spec).features
+    found = np.sort(t["center"].value)
+    assert len(found) == len(centres)
+    assert np.max(np.abs(found - centres)) < 0.05
+    assert np.all(np.abs(t["fwhm"].value - GAUSS_FWHM * s) < 0.2)
