@@ -33,13 +33,13 @@ def main():
     medium.refractive_index([500.0] * u.nm)   # pulls in specutils once
     print(f"import (linefinder + specutils + pandas): {time.perf_counter() - t0:.3f} s")
 
-    import linefinder.transitions as transitions
+    from linefinder.memo import clear_all
 
     species = ["H", "D", "T", "He II"]
     args = (species, (1, 10), (2, 1000))
 
     def cold(**kw):
-        transitions.clear_memos()   # no in-process reuse either: truly cold
+        clear_all()   # no in-process reuse either: truly cold
         return build_catalogue(*args, cache=False, **kw)
 
     t0 = time.perf_counter()

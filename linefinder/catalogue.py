@@ -290,7 +290,8 @@ def _species_columns(sp, arrays, *, fine, factor, formula, air_conditions, wavel
     wl_nm, freq_obs, rel, count = wl_nm[keep], freq_obs[keep], rel[keep], count[keep]
     air = vacuum_to_air(wl_nm * u.nm, formula=formula, conditions=air_conditions).to_value(u.nm)
     n = len(wl_nm)
-    cols = {"species": np.broadcast_to(np.array(sp.name), (n,)), "label": arrays["label"], "series": arrays["series"],
+    cols = {"species": np.broadcast_to(np.array(sp.name), (n,)), "label": arrays["label"],
+            "series": arrays["series"],
             "n_lower": arrays["n_lower"].astype(int), "n_upper": arrays["n_upper"].astype(int),
             "wavelength_vacuum": wl_nm, "wavelength_air": air, "frequency": freq_obs,
             "a_ul": arrays["a_ul"], "f_lu": arrays["f_lu"], "g_lower": arrays["g_lower"].astype(int),

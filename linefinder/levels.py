@@ -25,6 +25,7 @@ from astropy.table import QTable
 
 from . import constants as K
 from .errors import QuantumNumberError
+from .memo import Memo
 from .qed import ZETA3, bethe_log, g_se, g_vp, harmonic, _se_without_g
 from .species import parse_species
 
@@ -57,7 +58,7 @@ def _dirac_f_minus_1(n, twoj, za):
     return np.expm1(-0.5 * np.log1p(x))
 
 
-_CHARGE_MEMO = {}
+_CHARGE_MEMO = Memo(4)
 
 
 def _charge_terms(n, l, twoj, Z):
@@ -81,11 +82,13 @@ def _charge_terms(n, l, twoj, Z):
     lnk0 = bethe_log(n, l)
     lf = l.astype(float)
     d60 = np.where(l == 0, 4 * np.log(2) - 3.5,
-                   (3 - lf * (lf + 1) / nf ** 2) * 2 / np.maximum((4 * lf ** 2 - 1) * (2 * lf + 3), 1))
+                   (3 - lf * (lf + 1) / nf ** 2) * 2
+                   / np.maximum((4 * lf ** 2 - 1) * (2 * lf + 3), 1))
     ln = np.log(za ** -2)
     h_vp = (-4 / 15 * s + 5 * np.pi / 48 * za * s - 2 / 15 * za ** 2 * ln * s
             + g_vp(n, l) * za ** 2
-            + ((19 / 45 - np.pi ** 2 / 27) + (1 / 16 - 31 * np.pi ** 2 / 2880) * np.pi * za) * s * za ** 2)
+            + ((19 / 45 - np.pi ** 2 / 27) + (1 / 16 - 31 * np.pi ** 2 / 2880) * np.pi * za)
+            * s * za ** 2)
     b40 = np.where(l == 0,
                    1.5 * np.pi ** 2 * np.log(2) - 10 * np.pi ** 2 / 27 - 2179 / 648 - 9 / 4 * ZETA3,
                    0.0)
@@ -109,15 +112,7 @@ def _charge_terms(n, l, twoj, Z):
     out = {k: np.asarray(v, dtype=float) for k, v in out.items()}
     for arr in out.values():
         arr.flags.writeable = False
-    if len(_CHARGE_MEMO) >= 4:
-        _CHARGE_MEMO.pop(next(iter(_CHARGE_MEMO)))
-    _CHARGE_MEMO[key] = out
-    return out
-
-
-def clear_memo():
-    """Forget the kept charge-only terms (benchmarks that time a cold build)."""
-    _CHARGE_MEMO.clear()
+    return _CHARGE_MEMO.put(key, out)
 
 
 def shift_terms_hz(species, n, l, j):

@@ -24,7 +24,7 @@ import scipy.constants as sc
 
 from . import constants as K
 from .levels import binding_energy_hz
-from .levels import clear_memo as clear_level_memo
+from .memo import Memo
 from .radial import dipole_radial_integrals
 from .species import parse_species
 
@@ -56,14 +56,7 @@ class _LevelGrid:
         return self.energy[n, l, (twoj > 2 * l).astype(np.intp)]
 
 
-_ROW_MEMO = {}
-
-
-def clear_memos():
-    """Forget every in-process result kept between calls (radial rows, multiplet plans,
-    charge-only level terms): what a benchmark of a truly cold build needs."""
-    _ROW_MEMO.clear()
-    clear_level_memo()
+_ROW_MEMO = Memo(8)
 
 
 def _grid_states(n_max, l_max):
@@ -81,15 +74,7 @@ def _grid_states(n_max, l_max):
     out = (n, l, 2 * l + np.where(side == 1, 1, -1), (n * (l_max + 1) + l) * 2 + side)
     for arr in out:
         arr.flags.writeable = False
-    _remember(key, out)
-    return out
-
-
-def _remember(key, value):
-    """Keep a species-independent result for the next species (the last few only)."""
-    if len(_ROW_MEMO) >= 8:
-        _ROW_MEMO.pop(next(iter(_ROW_MEMO)))
-    _ROW_MEMO[key] = value
+    return _ROW_MEMO.put(key, out)
 
 
 def _radial_rows(nu, nl):
@@ -102,9 +87,7 @@ def _radial_rows(nu, nl):
     hit = _ROW_MEMO.get(key)
     if hit is not None:
         return hit
-    rows = _compute_radial_rows(nu, nl)
-    _remember(key, rows)
-    return rows
+    return _ROW_MEMO.put(key, _compute_radial_rows(nu, nl))
 
 
 def _compute_radial_rows(nu, nl):
@@ -130,7 +113,7 @@ def _multiplet_plan(nu, nl):
 
     Built on the dense (pair, l) grid of radial integrals: column l holds the
     channel upper l -> lower l - 1 (X_l) and upper l - 1 -> lower l (Y_l), each
-    split into its LS doublet components (fractions as in `_doublet_split`).
+    split into its LS doublet components (`_doublet_fractions`).
     """
     key = ("plan", nu.tobytes(), nl.tobytes())
     hit = _ROW_MEMO.get(key)
@@ -144,7 +127,7 @@ def _multiplet_plan(nu, nl):
     stride = 2 * (L + 1)             # flat index of (n, l, side) is n * stride + 2 l + side
     # The six components of column l, in the order (pair, l, component) so that each
     # pair's components are contiguous.  X_l: upper l -> lower l - 1; Y_l: upper l - 1
-    # -> lower l; the doublet fractions are those of `_doublet_split` with big = l;
+    # -> lower l; the doublet fractions are `_doublet_fractions` with big = l;
     # side 1 is j = l + 1/2.  Per component: channel, fraction kind, upper (dl, side),
     # lower (dl, side).
     chan = np.array([0, 0, 0, 1, 1, 1])
@@ -160,9 +143,7 @@ def _multiplet_plan(nu, nl):
     pp, col, comp = np.nonzero(ok)
     pp = pp.astype(np.int32)
     l = col + 1
-    lf = np.arange(L + 1, dtype=float)
-    frac = np.array([(lf + 1) / (2 * lf + 1), 1 / ((2 * lf + 1) * (2 * lf - 1)),
-                     (lf - 1) / (2 * lf - 1)])
+    frac = np.array(_doublet_fractions(np.arange(L + 1, dtype=float)))
     rad = np.stack([X, Y])[chan[comp], pp, l]
     s_c = frac[kind[comp], l] * (2.0 * l) * rad * rad
     iu = nu[pp] * stride + 2 * (l + du[comp]) + su[comp]
@@ -176,8 +157,15 @@ def _multiplet_plan(nu, nl):
             "count": np.diff(np.append(starts, len(pp)))}
     for arr in plan.values():
         arr.flags.writeable = False
-    _remember(key, (shape, plan))
-    return shape, plan
+    return _ROW_MEMO.put(key, (shape, plan))
+
+
+def _doublet_fractions(big):
+    """Shares of an l <-> l - 1 line strength (big = the larger l) in its three LS
+    doublet components: (j_big, j_small) = (big + 1/2, big - 1/2), (big - 1/2,
+    big - 1/2), (big - 1/2, big - 3/2)."""
+    return ((big + 1) / (2 * big + 1), 1 / ((2 * big + 1) * (2 * big - 1)),
+            (big - 1) / (2 * big - 1))
 
 
 def _doublet_split(lu, ll):
@@ -185,9 +173,7 @@ def _doublet_split(lu, ll):
     big = np.maximum(lu, ll)
     upper_is_big = lu == big
     out = []
-    for dj_big, dj_small, frac in ((+1, -1, (big + 1) / (2 * big + 1)),
-                                   (-1, -1, 1 / ((2 * big + 1) * (2 * big - 1))),
-                                   (-1, -3, (big - 1) / (2 * big - 1))):
+    for (dj_big, dj_small), frac in zip(((+1, -1), (-1, -1), (-1, -3)), _doublet_fractions(big)):
         tj_big = 2 * big + dj_big
         tj_small = 2 * big + dj_small
         ok = (frac > 0) & (tj_small >= 1)
