@@ -91,29 +91,33 @@ def line_labels(species, n_lower, n_upper, wavelength_conv_angstrom):
     hydrogen = species.Z == 1 or species.kind == "rydberg"
     if hydrogen and species.kind == "rydberg" and species.symbol != "H":
         radio = np.ones(len(nl), dtype=bool)        # Rydberg atoms: radio style throughout
-    # radio style everywhere first, then the optical rows overwritten
     out = np.char.add(np.char.add(species.radio_prefix, _int_text(nl)), greek)
     optical = ~radio
-    if not np.any(optical):
-        return _tight(out)
-    out = out.astype(f"<U{max(out.dtype.itemsize // 4, len(species.name) + 8)}")
-    if hydrogen:
+    if np.any(optical):
+        opt = _optical_labels(species, nl[optical], nu[optical], greek[optical], conv[optical])
+        out = out.astype(f"<U{max(out.dtype.itemsize, opt.dtype.itemsize) // 4}")
+        out[optical] = opt
+    return _tight(out)
+
+
+def _optical_labels(species, nl, nu, greek, conv):
+    """Labels of lines with n' < RADIO_FROM (Greek letters, upper level or wavelength)."""
+    if species.Z == 1 or species.kind == "rydberg":     # H, D, T
         base = species.symbol if species.symbol != "H" else ""
         prefixes = {k: (base if (base and k == 2) else base + v) for k, v in _PREFIX.items()}
         prefix = np.array([prefixes.get(int(k), "") for k in range(RADIO_FROM)])
-        o_nl, o_nu, o_dn = nl[optical], nu[optical], dn[optical]
-        tail = np.where(o_dn <= 5, greek[optical], _int_text(o_nu))
-        out[optical] = np.char.add(prefix[o_nl], tail)
-        return _tight(out)
-    lyman = optical & (nl == 1)
-    out[lyman] = np.char.add(f"{species.name} Ly", greek[lyman])
-    rest = optical & (nl > 1)
-    good = rest & np.isfinite(conv)
-    out[good] = np.char.add(f"{species.name} ", _int_text(np.rint(conv[good])))
-    bad = rest & ~np.isfinite(conv)
-    if np.any(bad):
-        out[bad] = [f"{species.name} {u}-{l}" for u, l in zip(nu[bad], nl[bad])]
-    return _tight(out)
+        return np.char.add(prefix[nl], np.where(nu - nl <= 5, greek, _int_text(nu)))
+    pieces = {"lyman": nl == 1, "wave": (nl > 1) & np.isfinite(conv),
+              "bare": (nl > 1) & ~np.isfinite(conv)}
+    text = {"lyman": np.char.add(f"{species.name} Ly", greek[pieces["lyman"]]),
+            "wave": np.char.add(f"{species.name} ", _int_text(np.rint(conv[pieces["wave"]]))),
+            "bare": np.array([f"{species.name} {u}-{l}" for u, l in
+                              zip(nu[pieces["bare"]], nl[pieces["bare"]])], dtype=str)}
+    width = max(max(t.dtype.itemsize for t in text.values()) // 4, 1)
+    out = np.empty(len(nl), dtype=f"<U{width}")
+    for key, sel in pieces.items():
+        out[sel] = text[key]
+    return out
 
 
 def _tight(text):
