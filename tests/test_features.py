@@ -186,4 +186,5 @@ def test_row_of_resolved_absorption_lines_is_not_one_broad_trough(rng):
     found = np.sort(t["center"].value)
     assert len(found) == len(centres)
     assert np.max(np.abs(found - centres)) < 0.05
-    assert np.all(np.abs(t["fwhm"].value - GAUSS_FWHM * s) < 0.2)
+    # each width within 4.5 of its own reported sigmas (12 lines: the largest is ~3 sigma)
+    assert np.all(np.abs(t["fwhm"].value - GAUSS_FWHM * s) < 4.5 * t["fwhm_err"].value)
