@@ -17,7 +17,8 @@ def _run(args):
     return identify(data, species=args.species, z=getattr(args, "z", None), zmin=args.zmin,
                     zmax=args.zmax, series=args.series, kinds=kinds_from_args(args), snr=args.snr,
                     resolution=args.resolution, extra_lines=extra, mask_sky=args.mask_sky,
-                    mask_telluric=args.mask_telluric)
+                    mask_telluric=args.mask_telluric,
+                    companions=not getattr(args, "no_companions", False))
 
 
 def _print_summary(res, s, source):
@@ -29,7 +30,8 @@ def _print_summary(res, s, source):
     for a in s["alternatives"][:3]:
         print(f"  alternative z = {a['z']:.6f} ({a['n_lines']} lines, score lower by {a['delta_score']:.1f})")
     for r in s["features"]:
-        name = r["label"] or (f"[user] {r['user_line']}" if r["user_line"] else "unidentified")
+        name = r["label"] or (f"[user] {r['user_line']}" if r["user_line"] else
+                              (f"[companion] {r['companion']}" if r["companion"] else "unidentified"))
         res_txt = "" if r["residual_kms"] is None else f"{r['residual_kms']:+7.1f} km/s"
         print(f"  {r['center']:12.6g} {s['unit']:<8} {r['kind']:<10} S/N {r['snr']:6.1f}  "
               f"{r['species'] or '':<6} {name:<14} {res_txt}  {r['flags']}")
@@ -98,6 +100,9 @@ def _options(p):
                    help="leave features on night-sky emission lines out (either sign)")
     p.add_argument("--mask-telluric", action="store_true",
                    help="leave absorption features inside telluric bands out")
+    p.add_argument("--no-companions", action="store_true",
+                   help="do not use the strong nebular lines ([O III], [N II], C IV ...) as "
+                        "evidence for the redshift in emission spectra")
     p.add_argument("--format", choices=["text", "json"], default="text")
 
 

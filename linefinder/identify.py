@@ -6,7 +6,11 @@ H I and He II; X-ray: hydrogen-like C VI ... Ni XXVIII; radio: H, He and C
 recombination lines) unless species are given, finds the shift from the
 features alone (`redshift.search_shift`) or takes a fixed one, assigns
 lines globally (`matching.assign`), matches what is left to a user's own
-line list, and looks for a second system among the rest.
+line list, and looks for a second system among the rest.  In optical/IR
+emission spectra the strong nebular lines ([O III], [N II], C IV ...,
+`companions`) are evidence for the redshift beside the hydrogen lines, and
+the features they explain are reported in a column of their own
+(``companion``), never as hydrogenic identifications.
 
 Every position error used in the matching is the quadrature sum of the
 measured centre error, a calibration term (default 2e-5 relative, 6 km/s)
@@ -23,11 +27,12 @@ from astropy.table import QTable
 
 from . import constants as K
 from .catalogue import build_catalogue
+from .companions import companion_lines
 from .contaminants import sky_mask
 from .doppler import C_KMS
 from .matching import CASE_B_HBETA, assign
 from .medium import air_to_vacuum
-from .redshift import classify, refine, search_shift, solution_probability
+from .redshift import _within, classify, refine, search_shift, solution_probability
 
 __all__ = ["identify", "Identification", "default_species", "read_line_list"]
 
@@ -251,7 +256,7 @@ def _observed(features, medium):
 def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
              kinds=("emission", "absorption"), snr=5.0, resolution=None, extra_lines=None,
              mask_sky=False, mask_telluric=False, calibration=2e-5, resolution_fraction=0.1,
-             find_systems=True):
+             find_systems=True, companions=True):
     """Identify the hydrogenic lines of a spectrum or a peak list; see the module docstring."""
     from .features import find_features
     from .readers import is_peak_list
@@ -314,6 +319,17 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     multiplet = _multiplet_codes(cat)
     x = np.log(cat["wavelength_vacuum"].to_value(u.m)) if len(cat) else np.zeros(0)
     y = np.log(lam) if len(lam) else np.zeros(0)
+    comp = _companions(companions and main_kind == "emission" and reg == "optical"
+                       and not is_freq_axis and len(cat) > 0, lmin, lmax, r_grid, extra_lines)
+    # the search sees the hydrogenic lines and the companions (half weight, own groups of
+    # one, so that they predict no missing lines, and out of the intensity check)
+    nc = len(comp)
+    x_comp = np.log([c["rest_vacuum_m"] for c in comp]) if nc else np.zeros(0)
+    st_comp = np.array([c["strength"] for c in comp], dtype=float)
+    xs, st_s = np.concatenate([x, x_comp]), np.concatenate([strength, st_comp])
+    search_kw = dict(group=_more_codes(group_codes, nc), multiplet=_more_codes(multiplet, nc),
+                     line_weight=np.concatenate([line_weight, np.full(nc, 0.5)]),
+                     intensity_strength=np.concatenate([strength, np.zeros(nc)]))
     snr_arr = np.asarray(feats["snr"], dtype=float) if len(feats) else np.zeros(0)
     w = np.log1p(np.clip(np.nan_to_num(snr_arr, nan=5.0), 0, 1e4))
     use = ~((sky & mask_sky) | (telluric & mask_telluric))
@@ -327,54 +343,56 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     # ~10 (absorption, where saturation flattens them): rules of thumb of this tool
     isig = np.log(3.0) if main_kind == "emission" else np.log(10.0)
     if z is None:
-        sols = search_shift(y[use], sy[use], w[use], x, strength, smin=s_lo, smax=s_hi,
+        sols = search_shift(y[use], sy[use], w[use], xs, st_s, smin=s_lo, smax=s_hi,
                             anchors=anchors if len(anchors) else None, window=window,
                             flux=flux_abs[use], intensity_sigma=isig, fwhm_ln=1.0 / R,
-                            group=group_codes, line_weight=line_weight, sy_fit=sy_meas[use],
-                            s_floor=calibration, multiplet=multiplet,
-                            half_width=fwhm_feat[use] / 2)
+                            sy_fit=sy_meas[use], s_floor=calibration,
+                            half_width=fwhm_feat[use] / 2, **search_kw)
         sols = [_reindex(s, np.flatnonzero(use)) for s in sols]
     else:
-        sol = refine(np.log1p(z), y[use], sy[use], w[use], x, strength, np.ones(len(x), bool),
-                     window=window, fwhm_ln=1.0 / R, group=group_codes, line_weight=line_weight,
-                     multiplet=multiplet, half_width=fwhm_feat[use] / 2)
+        sol = refine(np.log1p(z), y[use], sy[use], w[use], xs, st_s, np.ones(len(xs), bool),
+                     window=window, fwhm_ln=1.0 / R, half_width=fwhm_feat[use] / 2, **search_kw)
         sol = _reindex(sol, np.flatnonzero(use))
         sol.s = float(np.log1p(z))
         sols = [sol] if sol.n_lines else []
     status = classify(sols)
     best_s = sols[0].s if sols else (np.log1p(z) if z is not None else None)
     out = _feature_table(feats, sky, telluric, mask_sky, mask_telluric)
-    # user lines compete in the same assignment (strength 1: the user expects them), so a
-    # weak hydrogenic line cannot take a feature that the user's list explains better
+    # companions (their typical strengths) and user lines (strength 1: the user expects them)
+    # compete in the same assignment, so a weak hydrogenic line cannot take a feature that
+    # one of them explains better
+    other = comp + [dict(line, source="user") for line in (extra_lines or [])]
     x_user = np.log([line["rest_vacuum_m"] for line in extra_lines]) if extra_lines else np.zeros(0)
-    x_all = np.concatenate([x, x_user])
+    x_all = np.concatenate([x, x_comp, x_user])
     strength_assign = _defer_to_primary(x, strength, line_weight < 1, 1.0 / R)
-    strength_all = np.concatenate([strength_assign, np.ones(len(x_user))])
+    strength_all = np.concatenate([strength_assign, st_comp, np.ones(len(x_user))])
     blend = np.array(["blend" in str(f) for f in feats["flags"]], dtype=bool)
     group_all = np.concatenate([np.asarray(group, dtype=str),
+                                np.array([f"companion|{k}" for k in range(nc)], dtype=str),
                                 np.array([f"user|{k}" for k in range(len(x_user))], dtype=str)])
     s_user = best_s if best_s is not None else 0.0
     if best_s is not None and status != "none" or (z is not None and best_s is not None):
         idx = np.flatnonzero(use)
         res = assign(y[idx], sy[idx], flux_abs[idx], blend[idx], x_all, strength_all, group_all,
-                     best_s)
+                     best_s, snr=snr_arr[idx])
         # a label is as likely as its line at this z times this z itself (1 when fixed)
         res.score = res.score * (1.0 if z is not None else solution_probability(sols))
         _primary_in_blends(out, idx, res, y[idx], sy[idx], fwhm_feat[idx], best_s, x,
                            line_weight < 1)
-        _fill(out, idx, res, cat, y[idx], best_s, extra_lines)
+        _fill(out, idx, res, cat, y[idx], best_s, other)
     elif extra_lines and len(feats):
         # no hydrogenic solution: the user's lines are still matched at the rest frame (or z)
         idx = np.arange(len(feats))
         res = assign(y, sy, np.ones(len(y)), np.zeros(len(y), bool), x_user, np.ones(len(x_user)),
-                     group_all[len(x):], s_user)
-        res.best = np.where(res.best >= 0, res.best + len(x), -1)
+                     group_all[len(x) + nc:], s_user)
+        res.best = np.where(res.best >= 0, res.best + len(x) + nc, -1)
         res.alt_index[:] = -1
-        _fill(out, idx, res, cat, y, s_user, extra_lines)
+        _fill(out, idx, res, cat, y, s_user, other)
     systems = []
     if find_systems and z is None and status == "secure":
         rest = np.flatnonzero(use & (np.asarray(out["label"]) == "")
-                              & (np.asarray(out["user_line"]) == ""))
+                              & (np.asarray(out["user_line"]) == "")
+                              & (np.asarray(out["companion"]) == ""))
         if len(rest) >= 3:
             more = search_shift(y[rest], sy[rest], w[rest], x, strength, smin=s_lo, smax=s_hi,
                                 anchors=anchors if len(anchors) else None, n_solutions=3,
@@ -389,7 +407,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                     abs(more[0].s - sols[0].s) > 10 * max(sols[0].s_err, 1e-6):
                 systems.append(more[0])
                 res2 = assign(y[rest], sy[rest], flux_abs[rest], blend[rest], x, strength_assign,
-                              group, more[0].s)
+                              group, more[0].s, snr=snr_arr[rest])
                 _primary_in_blends(out, rest, res2, y[rest], sy[rest], fwhm_feat[rest],
                                    more[0].s, x, line_weight < 1)
                 _fill(out, rest, res2, cat, y[rest], more[0].s, None, system=2)
@@ -412,8 +430,28 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                    "resolution_fraction": resolution_fraction, "z_range": [zmin, zmax],
                    "z_fixed": z is not None, "sky_masked": bool(mask_sky),
                    "telluric_masked": bool(mask_telluric),
+                   "companions": [c["name"] for c in comp],
                    "constants": cat.meta.get("constants"), "catalogue": dict(cat.meta)}
     return result
+
+
+def _companions(wanted, lam_min, lam_max, R, extra_lines):
+    """The companion lines of the rest range, less those a user's line stands for
+    (within one resolution element): the user's list takes precedence."""
+    if not wanted:
+        return []
+    comp = [dict(c, source="companion") for c in companion_lines(lam_min, lam_max, R)]
+    if extra_lines:
+        xu = np.sort(np.log([line["rest_vacuum_m"] for line in extra_lines]))
+        near = _within(xu, np.log([c["rest_vacuum_m"] for c in comp]), 1.0 / R)
+        comp = [c for c, n in zip(comp, near) if not n]
+    return comp
+
+
+def _more_codes(codes, n):
+    """Integer codes followed by n new ones of their own (groups of one)."""
+    start = int(codes.max()) + 1 if len(codes) else 0
+    return np.concatenate([codes, start + np.arange(n)])
 
 
 def _width_ln(feats):
@@ -531,6 +569,7 @@ def _feature_table(feats, sky, telluric, mask_sky, mask_telluric):
     out["system"] = np.zeros(n, dtype=int)
     out["alternatives"] = np.full(n, "", dtype="U200")
     out["user_line"] = np.full(n, "", dtype="U40")
+    out["companion"] = np.full(n, "", dtype="U40")
     out.meta["sky_mask_applied"] = bool(mask_sky)
     out.meta["telluric_mask_applied"] = bool(mask_telluric)
     return out
@@ -538,7 +577,7 @@ def _feature_table(feats, sky, telluric, mask_sky, mask_telluric):
 
 def _fill(out, idx, res, cat, y, s, extra, system=1):
     """Write an `Assignment` into the feature table (line indices past the catalogue are
-    the user's lines)."""
+    those of `extra`: companions and the user's lines)."""
     ncat = len(cat)
     lam_cat = cat["wavelength_vacuum"].to_value(u.m) if ncat else np.zeros(0)
     out.meta.setdefault("alternatives_detail", {})
@@ -552,7 +591,8 @@ def _fill(out, idx, res, cat, y, s, extra, system=1):
         if j < 0:
             continue
         if j >= ncat:
-            out["user_line"][i] = extra[j - ncat]["name"]
+            line = extra[j - ncat]
+            out["companion" if line.get("source") == "companion" else "user_line"][i] = line["name"]
             out["score"][i] = float(res.score[k])
             continue
         out["label"][i] = str(cat["label"][j])

@@ -145,12 +145,15 @@ def _choose(rows, cols, ll, nf, comp):
     return choice
 
 
-def assign(y, sy, flux, blend, x, strength, group, s, *, tol=TOL):
+def assign(y, sy, flux, blend, x, strength, group, s, *, tol=TOL, snr=None):
     """Best line for every feature at shift s.
 
     Parameters: feature log-positions `y`, their sigmas `sy`, fluxes, blend
     flags; line log rest positions `x`, expected strengths, and a `group`
-    key per line (species and series) for the intensity prior.
+    key per line (species and series) for the intensity prior.  With the
+    features' `snr`, a line whose group's matched lines predict it well above
+    the detection limit is expected to be seen however weak it is next to the
+    strongest of its group (`_presence_prior`).
 
     Returns an `Assignment`.
     """
@@ -173,10 +176,11 @@ def assign(y, sy, flux, blend, x, strength, group, s, *, tol=TOL):
     comp = _components(lo, hi)
     # the prior that a line is there at all: its expected strength (1 for the strongest of
     # its group); a weak line must sit closer than a strong one to beat "unidentified"
-    base = -0.5 * d * d + np.log(np.clip(st[cols], 1e-4, 1.0))
+    base = -0.5 * d * d
+    presence = np.log(np.clip(st[cols], 1e-4, 1.0))
     choice = np.full(nf, -1)
-    for _ in range(2):   # second pass with the intensity prior from the first assignment
-        ll = base + _intensity_prior(choice, flux, st, gcode, rows, cols)
+    for _ in range(2):   # second pass with the intensity priors from the first assignment
+        ll = base + _priors(choice, flux, st, gcode, rows, cols, snr, presence)
         choice = _choose(rows, cols, ll, nf, comp)
     # blends may share a line: a blended feature left without one keeps its best candidate,
     # if that is likelier than "unidentified"
@@ -185,7 +189,7 @@ def assign(y, sy, flux, blend, x, strength, group, s, *, tol=TOL):
     lone = (choice < 0) & blend & (top >= 0)
     lone[lone] = ll[top[lone]] > NULL_LOG_LIKELIHOOD
     choice[lone] = cols[top[lone]]
-    ll = base + _intensity_prior(choice, flux, st, gcode, rows, cols)
+    ll = base + _priors(choice, flux, st, gcode, rows, cols, snr, presence)
     like = np.exp(ll)
     total = np.bincount(rows, weights=like, minlength=nf) + np.exp(NULL_LOG_LIKELIHOOD)
     chosen_pair = np.flatnonzero(cols == choice[rows])
@@ -206,22 +210,54 @@ def assign(y, sy, flux, blend, x, strength, group, s, *, tol=TOL):
     return out
 
 
+DETECTION_SNR = 5.0
+
+
+def _priors(choice, flux, strength, gcode, rows, cols, snr, presence):
+    """log priors per (feature, line) pair: is the line there, and does its flux fit?"""
+    prior, sc = _intensity_prior(choice, flux, strength, gcode, rows, cols)
+    return prior + _presence_prior(presence, sc, flux, strength, rows, cols, snr)
+
+
+def _presence_prior(presence, scale, flux, strength, rows, cols, snr):
+    """log prior that the line of each pair is in the spectrum at all.
+
+    By default its expected strength (1 for the strongest of its group): a weak
+    line must sit closer than a strong one to beat "unidentified".  Where the
+    group's flux scale is known from its matched lines and the feature's S/N
+    gives its flux error, the line's expected S/N over the detection limit
+    (S/N 5) raises that prior, up to 1: a high Balmer line predicted at S/N 20
+    is no less likely to be there than H-alpha."""
+    if snr is None:
+        return presence
+    snr_r = np.asarray(snr, dtype=float)[rows]
+    fr = flux[rows]
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        expected = np.exp(scale) * strength[cols] * snr_r / fr
+    ok = np.isfinite(expected) & (expected > 0)
+    out = presence.copy()
+    out[ok] = np.maximum(presence[ok], np.log(np.minimum(expected[ok] / DETECTION_SNR, 1.0)))
+    return out
+
+
 def _intensity_prior(choice, flux, strength, gcode, rows, cols):
     """log prior per (feature, line) pair: does the feature's flux fit the line's group?
 
     The group's scale is the median of ln(flux / expected strength) over its
     lines matched in the previous pass (two at least); a feature whose ratio
     is a factor of 3 off that scale pays -0.5, a factor of 9 pays -2, capped at -8.
+    Returns the priors and the group scale of each pair (NaN where unknown).
     """
     prior = np.zeros(len(rows))
+    nan = np.full(len(rows), np.nan)
     matched = np.flatnonzero(choice >= 0)
     if not len(matched):
-        return prior
+        return prior, nan
     j = choice[matched]
     f = flux[matched]
     ok = (strength[j] > 0) & np.isfinite(f) & (f > 0)
     if not np.any(ok):
-        return prior
+        return prior, nan
     g = gcode[j[ok]]
     vals = np.log(f[ok] / strength[j[ok]])
     scale = np.full(gcode.max() + 1, np.nan)
@@ -235,4 +271,4 @@ def _intensity_prior(choice, flux, strength, gcode, rows, cols):
         dev = (np.log(fr / strength[cols]) - sc) / np.log(3.0)
     use = np.isfinite(dev)
     prior[use] = np.maximum(-0.5 * dev[use] ** 2, -8.0)
-    return prior
+    return prior, sc

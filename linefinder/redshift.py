@@ -122,12 +122,15 @@ def _score(s_values, y, sy, x, strength, kinds_ok, window, tol):
 def search_shift(y, sy, w, x, strength, *, smin, smax, kinds_ok=None, tol=3.0, n_solutions=5,
                  anchors=None, window=None, flux=None,
                  intensity_sigma=np.log(3.0), fwhm_ln=0.0, group=None, line_weight=None,
-                 sy_fit=None, s_floor=0.0, multiplet=None, half_width=None):
+                 sy_fit=None, s_floor=0.0, multiplet=None, half_width=None,
+                 intensity_strength=None):
     """The best distinct shifts s = ln(1+z) in [smin, smax], best first.
 
     `window` is the observed range (ln lambda) where features could have been
     found; default the span of the features.  `multiplet` (per line) and
-    `half_width` (per feature) refine the missing-line test (`_missing_lines`)."""
+    `half_width` (per feature) refine the missing-line test (`_missing_lines`).
+    `intensity_strength` (per line, default `strength`) is what the intensity
+    check compares the fluxes with; 0 leaves a line out of it."""
     if len(y) == 0 or len(x) == 0:
         return []
     if kinds_ok is None:
@@ -158,7 +161,8 @@ def search_shift(y, sy, w, x, strength, *, smin, smax, kinds_ok=None, tol=3.0, n
     sols = [refine(c, y, sy, w, x, strength, kinds_ok, tol=tol, window=window, flux=flux,
                    intensity_sigma=intensity_sigma, fwhm_ln=fwhm_ln, group=group,
                    line_weight=line_weight, sy_fit=sy_fit, s_floor=s_floor, multiplet=multiplet,
-                   half_width=half_width) for c, _ in chosen]
+                   half_width=half_width, intensity_strength=intensity_strength)
+            for c, _ in chosen]
     sols = [s for s in sols if s.n_lines > 0]
     # refinement can bring two trial shifts onto one solution: keep the better
     unique = []
@@ -303,7 +307,7 @@ def weighted_shift(d, sigma):
 
 def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterations=3, flux=None,
            intensity_sigma=np.log(3.0), fwhm_ln=0.0, group=None, line_weight=None, sy_fit=None,
-           s_floor=0.0, multiplet=None, half_width=None):
+           s_floor=0.0, multiplet=None, half_width=None, intensity_strength=None):
     """Weighted least squares on the lines matched at s0 (one line per feature and vice versa).
 
     Lines are matched and scored with the combined position errors `sy`; the
@@ -314,13 +318,16 @@ def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterati
     to the error of the shift.
 
     With `flux`, the score adds `_intensity_evidence` of the matched lines
-    (beyond the first: one flux only sets the scale).  `line_weight` scales
+    (beyond the first: one flux only sets the scale), against
+    `intensity_strength` (default `strength`; lines at 0 are left out of
+    it).  `line_weight` scales
     the evidence each line can give (identify gives lines of species other than
     the primary one half weight, and half again when no primary line is matched: a He II or D I pattern without H I support is
     less believable, and He II n -> 2 lines repeat the Balmer series at four
     times the wavelength)."""
     s = float(s0)
     sol = Solution(s=s, s_err=np.inf, score=0.0)
+    st_flux = strength if intensity_strength is None else intensity_strength
     banned = set()
     for _ in range(iterations):
         d = (y[:, None] - s - x[None, :]) / sy[:, None]
@@ -356,7 +363,7 @@ def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterati
                 gains = gains * line_weight[lj]
                 if not np.any(line_weight[lj] >= 1):
                     gains = gains * 0.5   # no primary-species line at all: half again
-            terms, norm = (_intensity_terms(np.abs(flux[fi]), strength[lj], intensity_sigma)
+            terms, norm = (_intensity_terms(np.abs(flux[fi]), st_flux[lj], intensity_sigma)
                            if flux is not None and len(fi) >= 2 else (np.zeros(len(fi)), 0.0))
             # a match whose flux contradicts its expected strength by more than its position
             # supports it explains nothing: the feature is left to something else

@@ -23,6 +23,15 @@ def _alternatives(result):
     return out
 
 
+def _companion(f, i):
+    return (str(f["companion"][i]) or None) if "companion" in f.colnames else None
+
+
+def _other_name(f, i):
+    """The non-hydrogenic name of feature i: its user line or companion line, else ''."""
+    return str(f["user_line"][i]) or (_companion(f, i) or "")
+
+
 def summary(result, *, unit=None):
     """The JSON summary of an identification (keys of the command-line contract first)."""
     f = result.features
@@ -42,11 +51,13 @@ def summary(result, *, unit=None):
                "residual_kms": float(f["residual_kms"][i]) if label else None,
                "score": float(f["score"][i]) if label else 0.0,
                "alternatives": detail.get(i, []), "flags": str(f["flags"][i]),
-               "system": int(f["system"][i]), "user_line": str(f["user_line"][i]) or None}
+               "system": int(f["system"][i]), "user_line": str(f["user_line"][i]) or None,
+               "companion": _companion(f, i)}
         feats.append(row)
-        if not label:
+        # explained by nothing: no hydrogenic label, no user line, no companion line
+        if not (label or row["user_line"] or row["companion"]):
             unid.append({"center": c, "center_err": ce, "kind": row["kind"], "snr": row["snr"],
-                         "flags": row["flags"], "user_line": row["user_line"]})
+                         "flags": row["flags"]})
     best = result.solutions[0] if result.solutions else None
     return {"z": result.z, "z_err": result.z_err, "status": result.status,
             "velocity_kms": result.velocity_kms, "velocity_err_kms": result.velocity_err_kms,
@@ -153,9 +164,10 @@ def _plot(result, path_png, path_svg):
     centres = [f["center"][i].to_value(unit, equivalencies=u.spectral()) for i in range(len(f))]
     tiers = _label_tiers(centres, ax.get_xlim())
     for i, c in enumerate(centres):
-        color = "tab:blue" if f["label"][i] else ("tab:purple" if f["user_line"][i] else "tab:red")
+        other = _other_name(f, i)
+        color = "tab:blue" if f["label"][i] else ("tab:purple" if other else "tab:red")
         ax.axvline(c, color=color, lw=0.6, alpha=0.5)
-        name = f["label"][i] or f["user_line"][i] or "?"
+        name = f["label"][i] or other or "?"
         ax.annotate(name, (c, 1.0 - 0.2 * tiers[i]), xycoords=("data", "axes fraction"),
                     rotation=90, fontsize=7, ha="center", va="top", color=color,
                     bbox={"fc": "white", "ec": "none", "alpha": 0.7, "pad": 0.5})
@@ -238,7 +250,7 @@ def write_report(result, folder, *, force=False, source=""):
     png = base64.b64encode((folder / "spectrum.png").read_bytes()).decode()
     def _row(r):
         resid = "" if r["residual_kms"] is None else f"{r['residual_kms']:.1f}"
-        name = r["label"] or r["user_line"] or "—"
+        name = r["label"] or r["user_line"] or r["companion"] or "—"
         return (f"<tr><td>{r['center']:.6g}</td><td>{(r['center_err'] or 0):.2g}</td>"
                 f"<td>{r['kind']}</td><td>{r['snr']:.1f}</td><td>{name}</td>"
                 f"<td>{r['species'] or ''}</td><td>{resid}</td><td>{r['score']:.2f}</td>"

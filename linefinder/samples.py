@@ -29,6 +29,7 @@ from astropy import units as u
 from astropy.io import fits
 
 from .catalogue import build_catalogue
+from .companions import COMPANION_LINES
 from .doppler import C_KMS
 from .medium import air_to_vacuum, vacuum_to_air
 from .profiles import GAUSS_FWHM
@@ -38,11 +39,11 @@ __all__ = ["write_samples", "SAMPLES", "sample_path"]
 SAMPLES = ("emission_galaxy.fits", "hot_star.fits", "hd_discharge.csv", "xray_cluster.fits",
            "radio_rrl.csv")
 
-# Non-hydrogenic rest wavelengths, vacuum Å (NIST ASD values, recalled) and night-sky lines (air Å)
-NEBULAR_VAC = {"[O II] 3727": 3727.09, "[O II] 3730": 3729.88, "[Ne III] 3870": 3870.16,
-               "[O III] 4364": 4364.44, "[O III] 4960": 4960.30, "[O III] 5008": 5008.24,
-               "He I 5877": 5877.25, "[O I] 6302": 6302.05, "[N II] 6550": 6549.86,
-               "[N II] 6585": 6585.27, "[S II] 6718": 6718.29, "[S II] 6733": 6732.67}
+# Non-hydrogenic rest wavelengths, vacuum Å (`companions`, NIST ASD) and night-sky lines (air Å)
+NEBULAR_NAMES = ("[O II] 3727", "[O II] 3730", "[Ne III] 3869", "[O III] 4364", "[O III] 4960",
+                 "[O III] 5008", "He I 5877", "[O I] 6302", "[N II] 6550", "[N II] 6585",
+                 "[S II] 6718", "[S II] 6733")
+NEBULAR_VAC = {name: COMPANION_LINES[name][0] for name in NEBULAR_NAMES}
 SKY_AIR = {"[O I] 5577 sky": 5577.339, "Na D2 sky": 5889.950, "[O I] 6300 sky": 6300.304,
            "[O I] 6364 sky": 6363.776, "OH 7913 sky": 7913.71, "OH 8399 sky": 8399.17}
 
@@ -94,7 +95,7 @@ def _galaxy(rng):
         truth.append(_truth_line("emission", "H I", str(row["label"]),
                                  row["rest_wavelength_vacuum"].to_value(u.AA), obs, "Angstrom", amp,
                                  "vacuum", n_lower=2, n_upper=nu))
-    strengths = {"[O II] 3727": 3.0, "[O II] 3730": 3.6, "[Ne III] 3870": 0.9, "[O III] 4364": 0.15,
+    strengths = {"[O II] 3727": 3.0, "[O II] 3730": 3.6, "[Ne III] 3869": 0.9, "[O III] 4364": 0.15,
                  "[O III] 4960": 3.9, "[O III] 5008": 11.6, "He I 5877": 0.6, "[O I] 6302": 0.5,
                  "[N II] 6550": 2.0, "[N II] 6585": 6.1, "[S II] 6718": 2.4, "[S II] 6733": 1.8}
     for name, rest in NEBULAR_VAC.items():

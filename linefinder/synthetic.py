@@ -21,6 +21,7 @@ import numpy as np
 from astropy import units as u
 
 from .catalogue import build_catalogue
+from .companions import COMPANION_LINES
 from .contaminants import SKY_LINES_AIR
 from .doppler import C_KMS
 from .matching import CASE_B_HBETA
@@ -35,20 +36,20 @@ WINDOW_AA = (3000.0, 25000.0)
 MAX_PIXELS = 6000
 PIXELS_PER_FWHM = 2.5
 
-# non-hydrogenic lines (vacuum Å, NIST ASD, recalled) and their flux relative to H-beta or
-# Ly-alpha (ranges of this benchmark's invention, typical of star-forming galaxies and AGN)
-OTHER_LINES_VAC = {
-    "N V 1239": (1238.82, "uv", (0.02, 0.3)), "N V 1243": (1242.80, "uv", (0.01, 0.15)),
-    "Si IV 1394": (1393.76, "uv", (0.02, 0.2)), "C IV 1548": (1548.19, "uv", (0.05, 0.5)),
-    "C IV 1551": (1550.77, "uv", (0.03, 0.3)), "C III] 1909": (1908.73, "uv", (0.03, 0.3)),
-    "Mg II 2796": (2796.35, "uv", (0.02, 0.2)), "Mg II 2804": (2803.53, "uv", (0.01, 0.1)),
-    "[O II] 3727": (3727.09, "opt", (0.3, 2.0)), "[O II] 3730": (3729.88, "opt", (0.3, 2.5)),
-    "[Ne III] 3870": (3870.16, "opt", (0.05, 0.6)), "[O III] 4960": (4960.30, "opt", (0.2, 2.0)),
-    "[O III] 5008": (5008.24, "opt", (0.6, 6.0)), "He I 5877": (5877.25, "opt", (0.05, 0.15)),
-    "[N II] 6550": (6549.86, "opt", (0.05, 0.5)), "[N II] 6585": (6585.27, "opt", (0.15, 1.5)),
-    "[S II] 6718": (6718.29, "opt", (0.1, 0.6)), "[S II] 6733": (6732.67, "opt", (0.08, 0.5)),
-    "[S III] 9071": (9071.1, "opt", (0.05, 0.3)), "[S III] 9533": (9533.2, "opt", (0.1, 0.8)),
+# non-hydrogenic lines (vacuum Å from `companions`, NIST ASD) and their flux relative to
+# H-beta or Ly-alpha (ranges of this benchmark's invention, typical of star-forming galaxies
+# and AGN)
+_OTHER_FLUX = {
+    "N V 1239": (0.02, 0.3), "N V 1243": (0.01, 0.15), "Si IV 1394": (0.02, 0.2),
+    "C IV 1548": (0.05, 0.5), "C IV 1551": (0.03, 0.3), "C III] 1909": (0.03, 0.3),
+    "Mg II 2796": (0.02, 0.2), "Mg II 2804": (0.01, 0.1), "[O II] 3727": (0.3, 2.0),
+    "[O II] 3730": (0.3, 2.5), "[Ne III] 3869": (0.05, 0.6), "[O III] 4960": (0.2, 2.0),
+    "[O III] 5008": (0.6, 6.0), "He I 5877": (0.05, 0.15), "[N II] 6550": (0.05, 0.5),
+    "[N II] 6585": (0.15, 1.5), "[S II] 6718": (0.1, 0.6), "[S II] 6733": (0.08, 0.5),
+    "[S III] 9071": (0.05, 0.3), "[S III] 9533": (0.1, 0.8),
 }
+OTHER_LINES_VAC = {name: (COMPANION_LINES[name][0], COMPANION_LINES[name][1], flux)
+                   for name, flux in _OTHER_FLUX.items()}
 # Lyman-series emission relative to Ly-alpha (invented, an IGM-attenuated emitter)
 _LYMAN_EMISSION = {2: 1.0, 3: 0.08, 4: 0.03, 5: 0.015}
 _H_LOWER = (1, 2, 3, 4)
