@@ -105,21 +105,49 @@ def _zoom(axz, result, sel, unit, title, max_lines=8):
     axz.tick_params(labelsize=7)
 
 
-def _label_tiers(centres, xlim, min_sep=0.013, n_tiers=3):
-    """Tier (0 = top) for each label so that labels closer than `min_sep` of the axis
-    width are stacked down instead of printed over each other."""
-    lo, hi = xlim
-    width = (hi - lo) or 1.0
-    order = np.argsort(centres)
-    last = [-np.inf] * n_tiers
-    tiers = np.zeros(len(centres), dtype=int)
-    for i in order:
-        xf = (centres[i] - lo) / width
-        free = [t for t in range(n_tiers) if xf - last[t] >= min_sep]
-        t = free[0] if free else int(np.argmin(last))
-        tiers[i] = t
-        last[t] = xf
-    return tiers
+def _spread(xs, sep, lo, hi):
+    """Label positions as near as possible to `xs` (least squares) with gaps of at
+    least `sep`, inside [lo, hi]: neighbours that would overlap are pooled into a
+    run of evenly spaced labels centred on the mean of their positions, and runs
+    that then touch are pooled again.  Returns the positions in the input order."""
+    xs = np.asarray(xs, dtype=float)
+    order = np.argsort(xs, kind="stable")
+    runs = []   # [first label's position, number of labels, sum of (x_k - k sep)]
+    for x in xs[order]:
+        runs.append([x, 1, x])
+        while len(runs) > 1 and runs[-2][0] + runs[-2][1] * sep > runs[-1][0]:
+            b = runs.pop()
+            a = runs[-1]
+            total = a[2] + b[2] - b[1] * a[1] * sep   # offsets of b's labels shift by a's count
+            a[1] += b[1]
+            a[2] = total
+            a[0] = total / a[1]
+    pos = np.concatenate([r[0] + sep * np.arange(r[1]) for r in runs]) if runs else np.zeros(0)
+    # keep the whole row inside the axis: shift from the edges, squeezing only if it must
+    if len(pos) > 1 and pos[-1] - pos[0] > hi - lo:
+        pos = lo + (pos - pos[0]) * (hi - lo) / (pos[-1] - pos[0])
+    elif len(pos):
+        pos = pos + max(lo - pos[0], 0.0) - max(pos[-1] - hi, 0.0)
+    out = np.empty(len(xs))
+    out[order] = pos
+    return out
+
+
+def _label_row(axl, ax, centres, names, colors, fontsize=7):
+    """Feature labels in their own strip above the spectrum, spread so that none
+    overlaps another, each joined to its feature by a leader line."""
+    lo, hi = ax.get_xlim()
+    fig = ax.figure
+    width_in = ax.get_position().width * fig.get_figwidth()
+    sep = 1.35 * fontsize / 72 / width_in * (hi - lo)    # one rotated line of text, and a gap
+    xs = _spread(centres, sep, lo + 0.5 * sep, hi - 0.5 * sep)
+    axl.set_xlim(lo, hi)
+    axl.set_ylim(0, 1)
+    axl.axis("off")
+    for c, xl, name, color in zip(centres, xs, names, colors):
+        axl.plot([c, c, xl], [0.0, 0.08, 0.2], color=color, lw=0.6, alpha=0.7)
+        axl.text(xl, 0.22, name, rotation=90, fontsize=fontsize, ha="center", va="bottom",
+                 color=color)
 
 
 def _plot(result, path_png, path_svg):
@@ -132,9 +160,12 @@ def _plot(result, path_png, path_svg):
     f = result.features
     series = sorted({(str(s), str(r)) for s, r, l in zip(f["species"], f["series"], f["label"]) if l})[:4]
     nz = max(len(series), 1)
-    fig = plt.figure(figsize=(12, 10))
-    gs = fig.add_gridspec(4, nz, height_ratios=[3, 1, 2, 1.6], hspace=0.55)
-    ax = fig.add_subplot(gs[0, :])
+    fig = plt.figure(figsize=(12, 11))
+    gs = fig.add_gridspec(4, nz, height_ratios=[4, 1, 2, 1.6], hspace=0.45)
+    # the labels get a strip of their own right above the spectrum
+    top_gs = gs[0, :].subgridspec(2, 1, height_ratios=[1, 3], hspace=0.0)
+    axl = fig.add_subplot(top_gs[0])
+    ax = fig.add_subplot(top_gs[1])
     axr = fig.add_subplot(gs[1, :], sharex=ax)
     unit = f["center"].unit if len(f) else u.AA
     if fr is not None:
@@ -159,18 +190,16 @@ def _plot(result, path_png, path_svg):
                     label="masked spike (cosmic ray)")
         top = np.nanmax(np.where(good, y + sig, np.nan)) if good.any() else 1.0
         bottom = np.nanmin(np.where(good, y - sig, np.nan)) if good.any() else 0.0
-        # headroom above the data for the line labels
-        ax.set_ylim(bottom - 0.05 * (top - bottom), top + 1.3 * (top - bottom))
+        ax.set_ylim(bottom - 0.05 * (top - bottom), top + 0.08 * (top - bottom))
     centres = [f["center"][i].to_value(unit, equivalencies=u.spectral()) for i in range(len(f))]
-    tiers = _label_tiers(centres, ax.get_xlim())
+    names, colors = [], []
     for i, c in enumerate(centres):
         other = _other_name(f, i)
         color = "tab:blue" if f["label"][i] else ("tab:purple" if other else "tab:red")
-        ax.axvline(c, color=color, lw=0.6, alpha=0.5)
-        name = f["label"][i] or other or "?"
-        ax.annotate(name, (c, 1.0 - 0.2 * tiers[i]), xycoords=("data", "axes fraction"),
-                    rotation=90, fontsize=7, ha="center", va="top", color=color,
-                    bbox={"fc": "white", "ec": "none", "alpha": 0.7, "pad": 0.5})
+        ax.axvline(c, color=color, lw=0.6, alpha=0.4)
+        names.append(f["label"][i] or other or ("sky" if "sky" in str(f["flags"][i]) else "?"))
+        colors.append(color)
+    _label_row(axl, ax, centres, names, colors)
     if result.z is not None and len(result.lines):
         obs = (result.lines["wavelength_vacuum"] * (1 + result.z))
         if result.meta.get("medium") == "air" and unit.is_equivalent(u.m):
@@ -196,8 +225,15 @@ def _plot(result, path_png, path_svg):
     axr.set_xlabel(f"{axis_name} [{unit}]" + (f" ({medium})" if axis_name == "wavelength" else ""))
     ax.set_ylabel("flux")
     ztxt = f"z = {result.z:.6f} ± {result.z_err:.1e}" if result.z is not None else "no redshift"
-    ax.set_title(f"{result.meta.get('source', '')}  {ztxt}  status: {result.status}", fontsize=10)
-    ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.005, 1.0), borderaxespad=0.0)
+    axl.set_title(f"{result.meta.get('source', '')}  {ztxt}  status: {result.status}", fontsize=10)
+    from matplotlib.lines import Line2D
+
+    handles, _ = ax.get_legend_handles_labels()
+    handles += [Line2D([], [], color=c, lw=1.0, label=t) for c, t in (
+        ("tab:blue", "hydrogenic line"), ("tab:purple", "companion or your line"),
+        ("tab:red", "unexplained (sky: on a night-sky line)"))]
+    ax.legend(handles=handles, fontsize=7, loc="upper left", bbox_to_anchor=(1.005, 1.0),
+              borderaxespad=0.0)
     for k, (spn, ser) in enumerate(series):
         sel = [i for i in range(len(f)) if f["species"][i] == spn and f["series"][i] == ser]
         if fr is not None:

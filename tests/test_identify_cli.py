@@ -121,11 +121,20 @@ def test_telluric_mask_is_separate_from_sky_mask(capsys):
     assert masked.features["label"][ha[0]] == ""
 
 
-def test_report_label_tiers_and_spike_record():
-    from linefinder.report import _label_tiers
+def test_report_label_spread_and_spike_record():
+    from linefinder.report import _spread
 
-    # labels closer than the minimum separation are stacked, distant ones stay on top
-    assert list(_label_tiers([100.0, 100.5, 101.0, 500.0], (0.0, 1000.0))) == [0, 1, 2, 0]
+    # labels closer than their separation move apart symmetrically about their mean; one that
+    # stands alone stays where its feature is; the order is kept and no gap is below sep
+    xs = [500.0, 101.0, 100.0, 100.5]
+    pos = _spread(xs, 10.0, 0.0, 1000.0)
+    assert pos[0] == 500.0
+    assert np.mean(pos[1:]) == pytest.approx(np.mean(xs[1:]))
+    assert list(np.argsort(pos)) == list(np.argsort(xs))
+    assert np.min(np.diff(np.sort(pos))) >= 10.0 - 1e-9
+    # at the edge of the axis the row is pushed inside it
+    edge = _spread([0.0, 1.0, 2.0], 10.0, 0.0, 1000.0)
+    assert edge.min() >= 0.0 and np.min(np.diff(np.sort(edge))) >= 10.0 - 1e-9
     # the bundled galaxy's cosmic-ray pixel is masked before the search and recorded
     truth = json.loads(sample_path("emission_galaxy.fits.truth.json").read_text())
     res = find_features(read_input(sample_path("emission_galaxy.fits")))
