@@ -26,7 +26,8 @@ def _print_summary(res, s, source):
     print(f"{source}: z = {z}  status {s['status']}  velocity "
           f"{'—' if s['velocity_kms'] is None else format(s['velocity_kms'], '.1f')} km/s "
           f"({s['velocity_convention']})")
-    print(f"matched lines: {', '.join(s['lines']) or 'none'}")
+    print(f"matched lines: {', '.join(s['lines']) or 'none'}"
+          + (f"; companion lines: {', '.join(s['companion_lines'])}" if s["companion_lines"] else ""))
     for a in s["alternatives"][:3]:
         print(f"  alternative z = {a['z']:.6f} ({a['n_lines']} lines, score lower by {a['delta_score']:.1f})")
     for r in s["features"]:
@@ -57,7 +58,8 @@ def _cmd_redshift(args):
     s = summary(res)
     out = {"z": s["z"], "z_err": s["z_err"], "status": s["status"], "velocity_kms": s["velocity_kms"],
            "velocity_err_kms": s["velocity_err_kms"], "velocity_convention": s["velocity_convention"],
-           "lines": s["lines"], "alternatives": s["alternatives"], "systems": s["systems"]}
+           "lines": s["lines"], "companion_lines": s["companion_lines"],
+           "alternatives": s["alternatives"], "systems": s["systems"]}
     if args.format == "json":
         json.dump(out, sys.stdout, indent=1, ensure_ascii=False, default=json_default)
         sys.stdout.write("\n")

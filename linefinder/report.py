@@ -63,6 +63,7 @@ def summary(result, *, unit=None):
             "velocity_kms": result.velocity_kms, "velocity_err_kms": result.velocity_err_kms,
             "velocity_convention": result.velocity_convention,
             "lines": [r["label"] for r in feats if r["label"] and r["system"] == 1],
+            "companion_lines": [r["companion"] for r in feats if r["companion"]],
             "n_lines": best.n_lines if best else 0,
             "alternatives": _alternatives(result),
             "systems": [{"z": s.z, "z_err": s.z_err, "n_lines": s.n_lines} for s in result.systems],

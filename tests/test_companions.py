@@ -109,3 +109,21 @@ def test_companions_alone_give_no_redshift(rng):
     res = identify(spec)
     assert res.status == "none"
     assert not any(res.features["label"])
+
+
+def test_redshift_command_names_companions_and_turns_them_off(rng, tmp_path, capsys):
+    import json
+
+    from linefinder.cli import main
+
+    spec = _lone_hbeta_with_oiii(rng)
+    path = tmp_path / "hbeta_oiii.csv"
+    path.write_text("wavelength [Angstrom],flux,err\n" + "\n".join(
+        f"{a:.4f},{b:.5f},1.0" for a, b in zip(spec.axis.value, spec.flux.value)))
+    assert main(["redshift", str(path), "--format", "json"]) == 0
+    res = json.loads(capsys.readouterr().out)
+    assert res["lines"] == ["Hβ"]
+    assert set(res["companion_lines"]) == {"[O III] 4960", "[O III] 5008"}
+    assert main(["redshift", str(path), "--format", "json", "--no-companions"]) == 0
+    off = json.loads(capsys.readouterr().out)
+    assert off["companion_lines"] == [] and "Hβ" not in off["lines"]
