@@ -154,10 +154,7 @@ def _candidates(r, w, fwhm_px, threshold, kinds, n, den_cache=None):
                 widest = max(widest, c[1])
             elif all(np.sign(d[3]) == np.sign(c[3]) and d[1] < c[1] for d in near) and \
                     c[2] > 1.3 * _narrow_snr(near):
-                # narrow peaks beyond the wide one's half maximum are lines of their own
-                # beside the broad trough (the resolved members next to a blended series
-                # limit), not parts of it
-                gone = {id(d) for d in near if abs(d[0] - c[0]) < 0.5 * c[1]}
+                gone = {id(d) for d in near}
                 pos = [e for e in pos if e[1] not in gone]
                 bisect.insort(pos, (c[0], id(c), c))
                 widest = max(widest, c[1])
