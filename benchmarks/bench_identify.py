@@ -3,8 +3,8 @@
 Run:  python benchmarks/bench_identify.py [--n 600] [--noise 100] [--jobs 2] [--seed 1]
       python benchmarks/bench_identify.py --speed-only
 
-identify runs with its defaults plus the sky mask (--mask-sky), as for
-ground-based data.  The suite (linefinder.synthetic, invented data): z uniform in 0-7, peak S/N
+identify runs with its defaults (companion lines on) plus the sky mask
+(--mask-sky), as for ground-based data.  The suite (linefinder.synthetic, invented data): z uniform in 0-7, peak S/N
 log-uniform 3-100, R log-uniform 500-50 000, 70 % emission / 30 % absorption,
 each spectrum covering a factor 2.8 in wavelength (3500-9800 Å say: a survey
 spectrograph or a merged echelle; --max-pixels 6000 narrows high-R windows),
@@ -123,9 +123,13 @@ def evaluate(results):
     sec_lab = sec_ok = 0
     zok_true = zok_rec = 0
     el_true = el_rec = 0
+    alone_true = alone_rec = 0
     for r in signal:
         z_right = correct(r)
         is_eligible = sum(l["snr"] >= 5 for l in r["truth"]["lines"]) >= 3
+        # a lone line: nothing else in its spectrum, hydrogenic or not, at S/N >= 5
+        alone = sum(l["snr"] >= 5 for l in r["truth"]["lines"]) + \
+            sum(o["snr"] >= 5 for o in r["truth"]["other"]) <= 1
         feats = r["features"]
         truth_lines = r["truth"]["lines"]
         obs = np.sort([l["observed"] for l in truth_lines])
@@ -140,11 +144,13 @@ def evaluate(results):
             n_true += 1
             zok_true += z_right
             el_true += is_eligible
+            alone_true += alone
             near = [f for f in feats if _near(f, l["observed"])]
             if any(f["label"] == l["label"] for f in near):
                 n_rec += 1
                 zok_rec += z_right
                 el_rec += is_eligible
+                alone_rec += alone
                 conf["H line -> right label"] += 1
             elif not near:
                 conf["H line -> not detected"] += 1
@@ -175,6 +181,9 @@ def evaluate(results):
                  f"{100 * n_rec / max(n_true, 1):.1f} % (target >= 95 %)")
     lines.append(f"  of which in eligible spectra (>= 3 H lines at S/N >= 5, as for the z target): "
                  f"{el_rec}/{el_true} = {100 * el_rec / max(el_true, 1):.1f} %")
+    lines.append(f"  lone lines (nothing else at S/N >= 5 in their spectrum): {alone_rec}/{alone_true}; "
+                 f"recall over the others: {n_rec - alone_rec}/{n_true - alone_true} = "
+                 f"{100 * (n_rec - alone_rec) / max(n_true - alone_true, 1):.1f} %")
     lines.append(f"  of which in spectra whose z is right: {zok_rec}/{zok_true} = "
                  f"{100 * zok_rec / max(zok_true, 1):.1f} % (without a redshift no line is named)")
     lines.append(f"identification precision (hydrogenic labels): {n_lab_ok}/{n_lab} = "

@@ -554,7 +554,8 @@ def _feature_table(feats, sky, telluric, mask_sky, mask_telluric):
     flags = [str(f) for f in feats["flags"]] if len(feats) else []
     flags = [",".join([p for p in (f, "sky" if s else "", "telluric" if t else "") if p])
              for f, s, t in zip(flags, sky, telluric)]
-    out["flags"] = np.array(flags, dtype=object).astype(str) if len(flags) else np.array([], str)
+    # wide enough for the flags identify adds later ("blend" on a primary in a blend)
+    out["flags"] = np.array(flags, dtype="U96")
     n = len(feats)
     out["label"] = np.full(n, "", dtype=object).astype("U32")
     out["species"] = np.full(n, "", dtype="U16")

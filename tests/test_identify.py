@@ -116,3 +116,18 @@ def test_sky_mask_bands_absorb_and_lines_mask_either_sign():
     fwhm = [2.0] * 4 * u.AA
     kind = ["emission", "absorption", "emission", "absorption"]
     assert list(sky_mask(c, err, fwhm, medium="air", kind=kind)) == [False, True, True, True]
+
+
+def test_feature_flags_keep_what_identify_adds():
+    # identify appends "blend" (and the sky/telluric flags) to the measured flags; the column
+    # must hold them whole, not cut to the width of the longest measured flag
+    from astropy.table import QTable
+
+    from linefinder.identify import _feature_table
+
+    feats = QTable({"center": [5000.0, 5010.0] * u.AA, "center_err": [0.1, 0.1] * u.AA,
+                    "fwhm": [2.0, 2.0] * u.AA, "flux": [1.0, 2.0], "snr": [8.0, 9.0],
+                    "kind": ["emission", "emission"], "flags": ["poor_fit", ""]})
+    out = _feature_table(feats, np.array([True, False]), np.zeros(2, bool), True, False)
+    out["flags"][0] = out["flags"][0] + ",blend"
+    assert out["flags"][0] == "poor_fit,sky,blend"
