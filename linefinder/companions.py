@@ -4,9 +4,8 @@ In the emission spectra of H II regions, star-forming galaxies and active
 nuclei the hydrogen lines come with forbidden and resonance lines of O, N, S,
 Ne, C, Mg and He I at the same redshift: a lone H-alpha is named by the [N II]
 and [S II] lines beside it, H-beta by the [O III] doublet, Ly-alpha by C IV
-and N V.  identify uses these lines as evidence for the redshift (at half
-the weight of a hydrogen line, and a solution needs a hydrogenic line of its
-own), and reports features they explain in a column of their own, apart from
+and N V.  identify uses these lines as evidence for the redshift (as much
+as a hydrogen line's, but a solution needs a hydrogenic line of its own), and reports features they explain in a column of their own, apart from
 the hydrogenic identifications.
 
 Rest wavelengths are vacuum Å, NIST ASD values recalled from memory to the
