@@ -81,3 +81,23 @@ def test_one_line_is_no_redshift():
     sols = search_shift(y, np.array([3e-5]), np.array([3.0]), x, np.ones(len(x)), smin=0.0,
                         smax=np.log(8.0))
     assert classify(sols) == "none"
+
+
+def test_weak_line_predicted_well_above_detection_is_named():
+    # three lines of one group: two strong ones set the flux scale (flux = 100 x strength);
+    # the third is 0.01 as strong, so its plain prior (ln 0.01 = -4.6) is below the
+    # "unidentified" hypothesis (-4.5) even at zero residual.  Its feature has S/N 20 at a
+    # flux of 1.0, i.e. the scale predicts it at S/N 20, four times the detection limit:
+    # given the S/N, it is named; without, it is not
+    x = np.log([400e-9, 500e-9, 600e-9])
+    strength = np.array([0.01, 0.5, 1.0])
+    y = x.copy()
+    sy = np.full(3, 1e-4)
+    flux = np.array([1.0, 50.0, 100.0])
+    args = (y, sy, flux, np.zeros(3, bool), x, strength, np.zeros(3, int), 0.0)
+    assert list(assign(*args).best) == [-1, 1, 2]
+    sure = assign(*args, snr=np.array([20.0, 200.0, 300.0]))
+    assert list(sure.best) == [0, 1, 2]
+    # predicted at S/N 2 only (a feature that noisy), its prior rises to 2/5, not to 1
+    faint = assign(*args, snr=np.array([2.0, 200.0, 300.0]))
+    assert faint.best[0] == 0 and faint.score[0] < sure.score[0]
