@@ -104,14 +104,16 @@ def _find_peaks(s, height, prominence, distance):
 
 
 def _narrow_snr(near):
-    """SNR of the narrower candidates a wide one would replace: in quadrature when
-    they are resolved from each other (gaps over twice the widest kernel), else the
-    largest (peaks on one blended profile are not independent evidence)."""
-    if len(near) > 1:
-        px = np.sort([d[0] for d in near])
-        if np.min(np.diff(px)) > 2 * max(d[1] for d in near):
-            return float(np.sqrt(sum(d[2] ** 2 for d in near)))
-    return max(d[2] for d in near)
+    """SNR of the narrower candidates a wide one would replace: the strongest, and in
+    quadrature with it each further one that stands clear of all those already counted
+    (gap over twice the wider kernel of the two), strongest first.  Peaks on one
+    blended profile are not independent evidence; resolved lines below a series limit
+    are, even beside a merged clump of the highest members."""
+    counted = []
+    for d in sorted(near, key=lambda d: -d[2]):
+        if all(abs(d[0] - e[0]) > 2 * max(d[1], e[1]) for e in counted):
+            counted.append(d)
+    return float(np.sqrt(sum(d[2] ** 2 for d in counted)))
 
 
 def _candidates(r, w, fwhm_px, threshold, kinds, n, den_cache=None):
@@ -478,9 +480,13 @@ def _sync(feats, x, dx, sig):
             g["reach_px"] = float(min(reach, n / 4))
 
 
-def _split_wide(feats, x, r, sig, good, dx, fwhm_px, n):
+def _split_wide(feats, x, r, sig, good, dx, fwhm_px, n, threshold):
     """Try two components where one wide component fits badly (an unresolved pair).
 
+    The pair replaces the single component when it fits much better and each
+    of its two parts would be kept as a feature on its own (S/N of at least
+    half the detection threshold): a pair whose second part is noise only
+    soaks up what a neighbour's model leaves, and the line would be lost.
     Returns the features that replaced a single one (empty when none did)."""
     changed = []
     for g in list(feats):
@@ -502,7 +508,8 @@ def _split_wide(feats, x, r, sig, good, dx, fwhm_px, n):
         chi_one = fit["chi2_red"] * max(len(sel) - 5, 1)
         trial = [a, b]
         _fit_groups([trial], x, r, sig, good, 0, n, dx)
-        if any(t["fit"] is None or not t["fit"]["ok"] for t in trial):
+        if any(t["fit"] is None or not t["fit"]["ok"] or not t["fit"]["flux_err"] > 0
+               or abs(t["fit"]["flux"]) < 0.5 * threshold * t["fit"]["flux_err"] for t in trial):
             continue
         chi_two = trial[0]["fit"]["chi2_red"] * max(len(sel) - 8, 1)
         if chi_one - chi_two > 10 + 3 * np.log(len(sel)):
@@ -595,7 +602,7 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
         if not fresh:
             # a wide single component that fits badly is tried as a pair first: its residual
             # would otherwise seed spurious neighbours of the opposite sign
-            split = _split_wide(feats, x, rr, sig, good, dx, fwhm_px, n)
+            split = _split_wide(feats, x, rr, sig, good, dx, fwhm_px, n, threshold)
             if split:
                 model = _fit_groups(_groups(feats), x, rr, sig, good, 0, n, dx,
                                     changed={id(f) for f in split})

@@ -188,3 +188,23 @@ def test_row_of_resolved_absorption_lines_is_not_one_broad_trough(rng):
     assert np.max(np.abs(found - centres)) < 0.05
     # each width within 4.5 of its own reported sigmas (12 lines: the largest is ~3 sigma)
     assert np.all(np.abs(t["fwhm"].value - GAUSS_FWHM * s) < 4.5 * t["fwhm_err"].value)
+
+
+
+@pytest.mark.parametrize("index, first, last", [(163, 19, 25), (269, 8, 14)])
+def test_resolved_members_beside_the_merged_series_limit_are_found(index, first, last):
+    # two absorption spectra of the benchmark suite (invented data, seed 2): Balmer series
+    # whose highest members merge into one trough below the limit, while H19-H25 (R 6900,
+    # lines 1.6-3 FWHM apart) and H8-H14 (R 7200, lines 2-5 of their saturated FWHM apart)
+    # stand clear; each of them must be found on its own, neither swallowed by the trough
+    # nor split into a pair that loses it
+    from linefinder.catalogue import build_catalogue
+    from linefinder.synthetic import make_spectrum, random_parameters
+
+    gen = np.random.default_rng([2, index, 0])
+    spec, truth = make_spectrum(gen, **random_parameters(gen), max_pixels=150_000)
+    t = find_features(spec).features
+    found = t["center"].to_value(u.AA)
+    cat = build_catalogue("H", (2, 2), (first, last), z=truth["z"])
+    for c in cat["wavelength_vacuum"].to_value(u.AA):
+        assert np.min(np.abs(found - c)) < 0.5 * c / truth["resolution"], c
