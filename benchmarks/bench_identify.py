@@ -21,7 +21,8 @@ Definitions
   bounds (S/N >= 3) combined in inverse variance, which ignore overlaps.
 * identification: a true line (S/N >= 6, resolved: no other hydrogen line of
   the spectrum within 1.5 FWHM as seen, i.e. of the depth profile for saturated
-  absorption, so that it can be measured on its own) is
+  absorption, so that it can be measured on its own; at least one FWHM inside the
+  spectrum's ends, so that its profile is in the data) is
   recovered when a feature within
   max(3 sigma, FWHM/2) of it carries its label; a hydrogenic label on a feature
   is correct when a true line with that label lies there.
@@ -140,6 +141,10 @@ def evaluate(results):
             width = l.get("fwhm_obs_ln", l["fwhm_ln"])     # saturated absorption is broader
             if len(others) and np.min(np.abs(np.log(others / l["observed"]))) < 1.5 * width:
                 conf["H line unresolved from a neighbour (not counted)"] += 1
+                continue
+            ends = r["truth"].get("window")
+            if ends and min(np.log(l["observed"] / ends[0]), np.log(ends[1] / l["observed"])) < width:
+                conf["H line within one FWHM of the spectrum's end (not counted)"] += 1
                 continue
             n_true += 1
             zok_true += z_right

@@ -138,7 +138,7 @@ def make_spectrum(rng, *, z, snr, resolution, kind="emission", velocity_fwhm_kms
     inside = [r for r in cat if lam[0] < r["wavelength_vacuum"].to_value(u.AA) < lam[-1]]
     truth = {"z": float(z), "kind": kind, "resolution": R, "snr_peak": float(snr), "lines": [],
              "other": [], "sky": [], "spikes": [], "velocity_fwhm_kms": vfwhm,
-             "n_pixels": len(lam)}
+             "n_pixels": len(lam), "window": [float(lam[0]), float(lam[-1])]}
     rest = build_catalogue("H", (1, 4), (2, 30))
     rel = {(int(a), int(b)): float(c) for a, b, c in zip(rest["n_lower"], rest["n_upper"],
                                                           rest["rel_intensity"])}
