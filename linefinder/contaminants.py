@@ -4,8 +4,10 @@ Night-sky emission lines and telluric absorption bands, standard air
 wavelengths in Å (values recalled from common sky-line atlases, e.g.
 Osterbrock et al. 1996, to the 0.01 Å shown; band edges are approximate,
 common practice).  Features on a sky line are flagged ``sky``, absorption
-features in a telluric band ``telluric``; each set is left out of redshift
-and identification when asked (``mask_sky``, ``mask_telluric``).
+features in a telluric band ``telluric``; each set is left out of the
+redshift search when asked (``mask_sky``, ``mask_telluric``), and a masked
+feature is named only where the solution's other lines predict a line above
+the detection limit there (it keeps its flag).
 """
 
 import numpy as np

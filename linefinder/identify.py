@@ -375,9 +375,11 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                                 np.array([f"user|{k}" for k in range(len(x_user))], dtype=str)])
     s_user = best_s if best_s is not None else 0.0
     if best_s is not None and status != "none" or (z is not None and best_s is not None):
-        idx = np.flatnonzero(use)
+        # masked features take part too: one may be named where the solution's other lines
+        # predict a line above the detection limit (its sky or telluric flag stays)
+        idx = np.arange(len(feats))
         res = assign(y[idx], sy[idx], flux_abs[idx], blend[idx], x_all, strength_all, group_all,
-                     best_s, snr=snr_arr[idx])
+                     best_s, snr=snr_arr[idx], masked=~use[idx])
         # a label is as likely as its line at this z times this z itself (1 when fixed)
         res.score = res.score * (1.0 if z is not None else solution_probability(sols))
         _primary_in_blends(out, idx, res, y[idx], sy[idx], fwhm_feat[idx], best_s, x,

@@ -145,7 +145,7 @@ def _choose(rows, cols, ll, nf, comp):
     return choice
 
 
-def assign(y, sy, flux, blend, x, strength, group, s, *, tol=TOL, snr=None):
+def assign(y, sy, flux, blend, x, strength, group, s, *, tol=TOL, snr=None, masked=None):
     """Best line for every feature at shift s.
 
     Parameters: feature log-positions `y`, their sigmas `sy`, fluxes, blend
@@ -154,6 +154,12 @@ def assign(y, sy, flux, blend, x, strength, group, s, *, tol=TOL, snr=None):
     features' `snr`, a line whose group's matched lines predict it well above
     the detection limit is expected to be seen however weak it is next to the
     strongest of its group (`_presence_prior`).
+
+    `masked` features (on a night-sky line or in a telluric band) may take a
+    line only where the other features' matched lines predict it above the
+    detection limit at their flux: a sky residual is no evidence of a line,
+    but a line that must be there is not lost because the sky lies on it.
+    They take no part in setting the groups' flux scales.
 
     Returns an `Assignment`.
     """
@@ -178,18 +184,26 @@ def assign(y, sy, flux, blend, x, strength, group, s, *, tol=TOL, snr=None):
     # its group); a weak line must sit closer than a strong one to beat "unidentified"
     base = -0.5 * d * d
     presence = np.log(np.clip(st[cols], 1e-4, 1.0))
+    masked = np.zeros(nf, bool) if masked is None else np.asarray(masked, dtype=bool)
+    on_mask = masked[rows]
     choice = np.full(nf, -1)
-    for _ in range(2):   # second pass with the intensity priors from the first assignment
-        ll = base + _priors(choice, flux, st, gcode, rows, cols, snr, presence)
+    for k in range(2):
+        # first pass without the masked features, second with the intensity priors (and the
+        # predicted S/N) of the lines matched in the first
+        ll = base + _priors(np.where(masked, -1, choice), flux, st, gcode, rows, cols, snr,
+                            presence, masked=on_mask)
+        if k == 0:
+            ll[on_mask] = _EXCLUDED
         choice = _choose(rows, cols, ll, nf, comp)
     # blends may share a line: a blended feature left without one keeps its best candidate,
     # if that is likelier than "unidentified"
     top = _best_per_row(rows, ll, nf)
     blend = np.asarray(blend, dtype=bool)
-    lone = (choice < 0) & blend & (top >= 0)
+    lone = (choice < 0) & blend & (top >= 0) & ~masked
     lone[lone] = ll[top[lone]] > NULL_LOG_LIKELIHOOD
     choice[lone] = cols[top[lone]]
-    ll = base + _priors(choice, flux, st, gcode, rows, cols, snr, presence)
+    ll = base + _priors(np.where(masked, -1, choice), flux, st, gcode, rows, cols, snr, presence,
+                        masked=on_mask)
     like = np.exp(ll)
     total = np.bincount(rows, weights=like, minlength=nf) + np.exp(NULL_LOG_LIKELIHOOD)
     chosen_pair = np.flatnonzero(cols == choice[rows])
@@ -211,15 +225,16 @@ def assign(y, sy, flux, blend, x, strength, group, s, *, tol=TOL, snr=None):
 
 
 DETECTION_SNR = 5.0
+_EXCLUDED = -1e6     # log prior of a pair that may not be chosen (finite for the assignment)
 
 
-def _priors(choice, flux, strength, gcode, rows, cols, snr, presence):
+def _priors(choice, flux, strength, gcode, rows, cols, snr, presence, masked=None):
     """log priors per (feature, line) pair: is the line there, and does its flux fit?"""
     prior, sc = _intensity_prior(choice, flux, strength, gcode, rows, cols)
-    return prior + _presence_prior(presence, sc, flux, strength, rows, cols, snr)
+    return prior + _presence_prior(presence, sc, flux, strength, rows, cols, snr, masked)
 
 
-def _presence_prior(presence, scale, flux, strength, rows, cols, snr):
+def _presence_prior(presence, scale, flux, strength, rows, cols, snr, masked=None):
     """log prior that the line of each pair is in the spectrum at all.
 
     By default its expected strength (1 for the strongest of its group): a weak
@@ -227,9 +242,10 @@ def _presence_prior(presence, scale, flux, strength, rows, cols, snr):
     group's flux scale is known from its matched lines and the feature's S/N
     gives its flux error, the line's expected S/N over the detection limit
     (S/N 5) raises that prior, up to 1: a high Balmer line predicted at S/N 20
-    is no less likely to be there than H-alpha."""
+    is no less likely to be there than H-alpha.  A `masked` pair is excluded
+    unless that prediction puts its line above the detection limit."""
     if snr is None:
-        return presence
+        return presence if masked is None else np.where(masked, _EXCLUDED, presence)
     snr_r = np.asarray(snr, dtype=float)[rows]
     fr = flux[rows]
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
@@ -237,6 +253,9 @@ def _presence_prior(presence, scale, flux, strength, rows, cols, snr):
     ok = np.isfinite(expected) & (expected > 0)
     out = presence.copy()
     out[ok] = np.maximum(presence[ok], np.log(np.minimum(expected[ok] / DETECTION_SNR, 1.0)))
+    if masked is not None:
+        out[masked] = np.where(ok[masked] & (np.where(ok, expected, 0.0)[masked] >= DETECTION_SNR),
+                               0.0, _EXCLUDED)
     return out
 
 

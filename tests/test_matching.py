@@ -101,3 +101,25 @@ def test_weak_line_predicted_well_above_detection_is_named():
     # predicted at S/N 2 only (a feature that noisy), its prior rises to 2/5, not to 1
     faint = assign(*args, snr=np.array([2.0, 200.0, 300.0]))
     assert faint.best[0] == 0 and faint.score[0] < sure.score[0]
+
+
+def test_masked_feature_is_named_only_where_a_line_must_be():
+    # four lines of one group, all at the feature positions; the last two features are
+    # masked (on a sky line, say).  The unmasked pair sets the flux scale (flux = 100 x
+    # strength).  Masked feature 2 sits on a line the scale predicts at S/N 20, four times
+    # the detection limit: it is named.  Masked feature 3 sits on a line predicted at S/N
+    # 2: the sky residual there is no evidence of it, and it stays unidentified, although
+    # its residual is zero and unmasked it would be named
+    x = np.log([400e-9, 500e-9, 600e-9, 700e-9])
+    strength = np.array([1.0, 0.5, 0.2, 0.02])
+    y = x.copy()
+    sy = np.full(4, 1e-4)
+    flux = np.array([100.0, 50.0, 20.0, 2.0])
+    snr = np.array([300.0, 200.0, 20.0, 2.0])
+    args = (y, sy, flux, np.zeros(4, bool), x, strength, np.zeros(4, int), 0.0)
+    assert list(assign(*args, snr=snr).best) == [0, 1, 2, 3]
+    masked = assign(*args, snr=snr, masked=np.array([False, False, True, True]))
+    assert list(masked.best) == [0, 1, 2, -1]
+    # without the S/N nothing predicts the masked lines: neither is named
+    blind = assign(*args, masked=np.array([False, False, True, True]))
+    assert list(blind.best) == [0, 1, -1, -1]
