@@ -65,7 +65,8 @@ def _run_one(args):
             "score": sols[0].score if sols else None, "margin": margin,
             "n_lines": sols[0].n_lines if sols else 0,
             "z_best": sols[0].z if sols else None,
-            "features": feats, "seconds": dt, "n_pixels": len(spec)}
+            "features": feats, "seconds": dt, "n_pixels": len(spec),
+            "readings": [r["z"] for r in res.single_line_readings]}
 
 
 def _near(feat, obs):
@@ -97,6 +98,14 @@ def evaluate(results):
                  f"{100 * len(secure_ok) / max(len(secure), 1):.1f} % (target >= 99 %)")
     lines.append(f"'secure' on pure noise: {len(noise_secure)}/{len(noise)} (target 0)")
     status_counts = Counter((r["status"], "correct" if correct(r) else "wrong") for r in signal)
+    # single-line readings (status none): is the true z among them, and how many are there
+    read = [r for r in signal if r.get("readings")]
+    hit = [r for r in read if any(abs(zz - r["truth"]["z"]) < 5e-4 * (1 + r["truth"]["z"])
+                                  for zz in r["readings"])]
+    lines.append(f"single-line readings (status none): {len(read)} spectra, true z among them in "
+                 f"{len(hit)} ({100 * len(hit) / max(len(read), 1):.0f} %), "
+                 f"{np.mean([len(r['readings']) for r in read]) if read else 0:.1f} readings each; "
+                 f"on pure noise: {sum(bool(r.get('readings')) for r in noise)}/{len(noise)} spectra")
     lines.append("status x outcome (all spectra with lines): " +
                  ", ".join(f"{a}/{b}: {n}" for (a, b), n in sorted(status_counts.items())))
     # z scatter against the Cramer-Rao bound: of the whole spectrum (overlaps included, the

@@ -30,6 +30,11 @@ def _print_summary(res, s, source):
           + (f"; companion lines: {', '.join(s['companion_lines'])}" if s["companion_lines"] else ""))
     for a in s["alternatives"][:3]:
         print(f"  alternative z = {a['z']:.6f} ({a['n_lines']} lines, score lower by {a['delta_score']:.1f})")
+    if s["single_line_readings"]:
+        print("one clear line only, so no redshift; it could be " + ", ".join(
+            f"{r['label']} at z = {r['z']:.4f}" for r in s["single_line_readings"][:8])
+            + (" ..." if len(s["single_line_readings"]) > 8 else "")
+            + " (other lines of each series would fall outside the window or below detection)")
     for r in s["features"]:
         name = r["label"] or (f"[user] {r['user_line']}" if r["user_line"] else
                               (f"[companion] {r['companion']}" if r["companion"] else "unidentified"))
@@ -59,7 +64,8 @@ def _cmd_redshift(args):
     out = {"z": s["z"], "z_err": s["z_err"], "status": s["status"], "velocity_kms": s["velocity_kms"],
            "velocity_err_kms": s["velocity_err_kms"], "velocity_convention": s["velocity_convention"],
            "lines": s["lines"], "companion_lines": s["companion_lines"],
-           "alternatives": s["alternatives"], "systems": s["systems"]}
+           "alternatives": s["alternatives"], "systems": s["systems"],
+           "single_line_readings": s["single_line_readings"]}
     if args.format == "json":
         json.dump(out, sys.stdout, indent=1, ensure_ascii=False, default=json_default)
         sys.stdout.write("\n")

@@ -33,6 +33,7 @@ from .doppler import C_KMS
 from .matching import CASE_B_HBETA, assign
 from .medium import air_to_vacuum
 from .redshift import _within, classify, refine, search_shift, solution_probability
+from .single_line import READING_STRENGTH, single_line_readings
 
 __all__ = ["identify", "Identification", "default_species", "read_line_list"]
 
@@ -57,6 +58,8 @@ class Identification:
     systems: list = field(default_factory=list)
     feature_result: object = None
     meta: dict = field(default_factory=dict)
+    #: with status "none": what the strongest feature could be on its own (`single_line`)
+    single_line_readings: list = field(default_factory=list)
 
 
 def regime(lam_vac_m):
@@ -298,9 +301,15 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     if z is not None:
         zmin = zmax = z
     names = list(species) if species else default_species(reg)
+    window = _observed_window(feature_result, np.log(lam) if len(lam) else np.zeros(0))
     if len(lam):
-        lam_rest_min = lam.min() / (1 + zmax) * (1 - 5e-3)
-        lam_rest_max = lam.max() / (1 + zmin) * (1 + 5e-3)
+        # the whole observed window, not just the features' span: a line expected beyond the
+        # reddest (or bluest) feature and absent is evidence too
+        lo_obs, hi_obs = lam.min(), lam.max()
+        if window is not None:
+            lo_obs, hi_obs = min(lo_obs, np.exp(window[0])), max(hi_obs, np.exp(window[1]))
+        lam_rest_min = lo_obs / (1 + zmax) * (1 - 5e-3)
+        lam_rest_max = hi_obs / (1 + zmin) * (1 + 5e-3)
     else:
         lam_rest_min, lam_rest_max = 1e-10, 1e-5
     lower, upper = _n_ranges(reg, lam_rest_min, lam_rest_max)
@@ -339,7 +348,6 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     fwhm_feat = _width_ln(feats)
     s_lo, s_hi = np.log1p(zmin), np.log1p(zmax)
     anchors = np.flatnonzero(strength >= 0.02)
-    window = _observed_window(feature_result, y)
     flux_abs = np.abs(np.asarray(u.Quantity(feats["flux"]).value, dtype=float)) if len(feats) \
         else np.zeros(0)
     # measured fluxes should follow the expected strengths within a factor ~3 (emission) or
@@ -418,6 +426,10 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                 _fill(out, rest, res2, cat, y[rest], more[0].s, None, system=2)
     result = Identification(features=out, status=status, solutions=sols, lines=cat,
                             feature_result=feature_result, systems=systems)
+    if status == "none" and z is None and len(cat):
+        result.single_line_readings = _readings(
+            use, kinds_arr, main_kind, snr_arr, snr, y, sy, x, strength, group, cat, comp,
+            s_lo, s_hi, window)
     if best_s is not None and (status != "none" or z is not None):
         zz = float(np.expm1(best_s))
         zerr = sols[0].z_err if sols else 0.0
@@ -510,6 +522,35 @@ def _defer_to_primary(x, strength, secondary, fwhm_ln, factor=0.1):
     idx = np.flatnonzero(secondary)
     out[idx[dist < fwhm_ln]] *= factor
     return out
+
+
+def _readings(use, kinds_arr, main_kind, snr_arr, snr, y, sy, x, strength, group, cat,
+              comp, s_lo, s_hi, window):
+    """Single-line readings of the strongest clear feature (S/N 1.5 times the detection
+    limit, above what noise gives), against the strong hydrogenic and companion lines."""
+    ok = use & (kinds_arr == main_kind) & (np.nan_to_num(snr_arr) >= 1.5 * snr)
+    if not np.any(ok):
+        return []
+    i = int(np.flatnonzero(ok)[np.argmax(snr_arr[ok])])
+    nc = len(comp)
+    xs = np.concatenate([x, np.log([c["rest_vacuum_m"] for c in comp]) if nc else np.zeros(0)])
+    # companions of one ion form a group ([O III] 4960 predicts 5008 at three times its
+    # flux); their typical fluxes set the ratios
+    ion = [c["name"].rsplit(" ", 1)[0] for c in comp]
+    top = {k: max(c["strength"] for c, name in zip(comp, ion) if name == k) for k in set(ion)}
+    st = np.concatenate([strength, [c["strength"] / top[name] if top[name] > 0 else 0.0
+                                    for c, name in zip(comp, ion)]])
+    gr = np.concatenate([np.asarray(group, dtype=str), [f"companion|{i}" for i in ion]])
+    # read as the strong ones only: strong in their group, and (companions) strong beside H
+    readable = (st >= READING_STRENGTH) & np.concatenate(
+        [np.ones(len(x), bool), np.array([c["strength"] >= READING_STRENGTH for c in comp], bool)])
+    labels = np.concatenate([np.asarray(cat["label"], dtype=str), [c["name"] for c in comp]])
+    spc = np.concatenate([np.asarray(cat["species"], dtype=str), [""] * nc])
+    found = np.flatnonzero(use)
+    loc = int(np.searchsorted(found, i))
+    return single_line_readings(y[found], sy[found], snr_arr[found], loc, xs, st, gr, labels,
+                                spc, smin=s_lo, smax=s_hi, window=window, detection_snr=snr,
+                                readable=readable)
 
 
 def _observed_window(feature_result, y):

@@ -67,6 +67,7 @@ def summary(result, *, unit=None):
             "n_lines": best.n_lines if best else 0,
             "alternatives": _alternatives(result),
             "systems": [{"z": s.z, "z_err": s.z_err, "n_lines": s.n_lines} for s in result.systems],
+            "single_line_readings": list(getattr(result, "single_line_readings", [])),
             "features": feats, "unidentified": unid, "unit": str(cu),
             "medium": result.meta.get("medium"), "meta": {k: v for k, v in result.meta.items()
                                                            if k != "catalogue"}}
@@ -296,11 +297,17 @@ def write_report(result, folder, *, force=False, source=""):
     rows = "\n".join(_row(r) for r in summ["features"])
     ztxt = (f"z = {summ['z']:.6f} ± {summ['z_err']:.1e} (velocity {summ['velocity_kms']:.1f} km/s, "
             f"{summ['velocity_convention']} convention)" if summ["z"] is not None else "no redshift")
+    readings = ""
+    if summ.get("single_line_readings"):
+        readings = ("<p>One clear line only, so no redshift. It could be: " + ", ".join(
+            f"{r['label']} at z = {r['z']:.4f} ± {r['z_err']:.1e}" for r in summ["single_line_readings"])
+            + " (each reading leaves the other lines of its series outside the window or below"
+            " detection; settle it with more data).</p>")
     html = f"""<!DOCTYPE html><html><head><meta charset="utf-8"><title>linefinder report</title>
 <style>body{{font-family:sans-serif;margin:2em}}table{{border-collapse:collapse}}
 td,th{{border:1px solid #ccc;padding:2px 6px;font-size:90%}}</style></head><body>
 <h1>linefinder report</h1><p>{source}</p><p><b>{ztxt}</b>, status <b>{summ['status']}</b>;
-{summ['n_lines']} lines matched; medium of wavelengths: {summ['medium']}.</p>
+{summ['n_lines']} lines matched; medium of wavelengths: {summ['medium']}.</p>{readings}
 <img src="data:image/png;base64,{png}" style="max-width:100%">
 <h2>Features ({summ['unit']})</h2><table><tr><th>center</th><th>±</th><th>kind</th><th>S/N</th>
 <th>identification</th><th>species</th><th>residual km/s</th><th>score</th><th>flags</th></tr>

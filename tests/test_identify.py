@@ -131,3 +131,30 @@ def test_feature_flags_keep_what_identify_adds():
     out = _feature_table(feats, np.array([True, False]), np.zeros(2, bool), True, False)
     out["flags"][0] = out["flags"][0] + ",blend"
     assert out["flags"][0] == "poor_fit,sky,blend"
+
+
+def test_one_line_gets_readings_not_a_redshift(rng):
+    # one emission line at 6000 Å (vacuum), R = 1000, window 4000-9000 Å: no redshift, but
+    # the possible readings.  Lyα at z = 6000/1215.67 - 1 stays (Rydberg-formula line: the
+    # catalogue's own position); Hβ is struck out, as Hα would then stand at 8100 Å at 2.86
+    # times its S/N (Case B, Storey & Hummer 1995); so is [O III] 4960, whose 5008 partner
+    # would stand 48 Å redward at three times its flux (the transition-probability ratio, a
+    # fact of the trade); [O III] 5008 stays, its partner predicted too faint to be missed
+    from linefinder.profiles import GAUSS_FWHM
+
+    R = 1000.0
+    x = np.exp(np.arange(np.log(4000.0), np.log(9000.0), 1 / (2.5 * R)))
+    s = 6000.0 / R / GAUSS_FWHM
+    y = 10.0 + 6.0 * np.exp(-0.5 * ((x - 6000.0) / s) ** 2) + rng.normal(0, 0.3, len(x))
+    spec = SpectrumData(x * u.AA, y * u.adu, np.full(len(x), 0.3) * u.adu,
+                        meta={"source": "synthetic", "resolution": R, "medium": "vacuum"})
+    res = identify(spec)
+    assert res.status == "none" and res.z is None
+    read = {r["label"]: r for r in res.single_line_readings}
+    lya = build_catalogue("H", (1, 1), (2, 2), resolution=R)["wavelength_vacuum"].to_value(u.AA)
+    assert read["Lyα"]["z"] == pytest.approx(6000.0 / lya[0] - 1, abs=4 * read["Lyα"]["z_err"])
+    assert "Hβ" not in read and "[O III] 4960" not in read and "[O III] 5008" in read
+    assert np.all(np.diff([r["z"] for r in res.single_line_readings]) >= 0)
+    # a spectrum with a redshift has no readings
+    spec2, _ = make_spectrum(rng, z=0.2, snr=40, resolution=2000, contaminants=False)
+    assert identify(spec2).status == "secure" and identify(spec2).single_line_readings == []

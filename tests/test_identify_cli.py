@@ -55,7 +55,23 @@ def test_featureless_spectrum_status_none(rng, capsys, tmp_path):
     path.write_text("wavelength [Angstrom],flux,err\n" + "\n".join(
         f"{a},{b},0.1" for a, b in zip(x, 1 + rng.normal(0, 0.1, len(x)))))
     assert main(["redshift", str(path), "--format", "json"]) == 0
-    assert json.loads(capsys.readouterr().out)["status"] == "none"
+    out = json.loads(capsys.readouterr().out)
+    assert out["status"] == "none" and out["single_line_readings"] == []
+
+
+def test_one_line_readings_printed_and_in_json(rng, capsys, tmp_path):
+    # one clear emission line at 6000 Å: no redshift; the JSON and the text list readings
+    x = np.exp(np.arange(np.log(4000.0), np.log(9000.0), 1 / 2500.0))
+    y = 10 + 6 * np.exp(-0.5 * ((x - 6000.0) / 2.55) ** 2) + rng.normal(0, 0.3, len(x))
+    path = tmp_path / "one.csv"
+    path.write_text("wavelength [Angstrom],flux,err\n" + "\n".join(
+        f"{a},{b},0.3" for a, b in zip(x, y)))
+    assert main(["redshift", str(path), "--format", "json", "--medium", "vacuum"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["status"] == "none" and out["z"] is None
+    assert "Lyα" in [r["label"] for r in out["single_line_readings"]]
+    assert main(["identify", str(path), "--medium", "vacuum"]) == 0
+    assert "one clear line only" in capsys.readouterr().out
 
 
 def test_centre_errors_are_honest(rng):
