@@ -16,6 +16,8 @@ feature is labelled from it.
 
 import numpy as np
 
+from .redshift import _nearest
+
 __all__ = ["single_line_readings", "READING_STRENGTH", "STRIKE_FACTOR"]
 
 READING_STRENGTH = 0.3   # strong lines only: the usual single-line readings
@@ -32,7 +34,8 @@ def single_line_readings(y, sy, snr, candidate, x, strength, group, labels, spec
     species; the ln(1+z) range; the observed ln(lambda) window.  `readable`
     (default: strength >= READING_STRENGTH) says which lines a reading may be.
 
-    Returns a list of dicts (``label``, ``species``, ``z``, ``z_err``), by z.
+    Returns a list of dicts (``label``, ``species`` (None for a companion line), ``z``,
+    ``z_err``), by z.
     """
     x = np.asarray(x, dtype=float)
     strength = np.asarray(strength, dtype=float)
@@ -53,12 +56,11 @@ def single_line_readings(y, sy, snr, candidate, x, strength, group, labels, spec
         predicted = snr_c * strength[mates] / strength[j]
         loud = inside & (predicted >= STRIKE_FACTOR * detection_snr)
         if np.any(loud):
-            k = np.clip(np.searchsorted(found, pos[loud]), 1, max(len(found) - 1, 1))
-            near = np.minimum(np.abs(found[k - 1] - pos[loud]), np.abs(found[np.minimum(k, len(found) - 1)] - pos[loud]))
-            if np.any(near > tol * max(syc, 1e-7)):
-                continue
+            miss = np.abs(found[_nearest(found, pos[loud])] - pos[loud])
+            if np.any(miss > tol * max(syc, 1e-7)):
+                continue   # a line it predicts loud and clear is not there
         z = float(np.expm1(s))
-        out.append({"label": str(labels[j]), "species": str(species[j]), "z": z,
+        out.append({"label": str(labels[j]), "species": str(species[j]) or None, "z": z,
                     "z_err": float((1 + z) * syc)})
     # one reading per label and z (fine-structure components of one line)
     uniq = {}
