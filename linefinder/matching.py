@@ -187,13 +187,11 @@ def assign(y, sy, flux, blend, x, strength, group, s, *, tol=TOL, snr=None, mask
     masked = np.zeros(nf, bool) if masked is None else np.asarray(masked, dtype=bool)
     on_mask = masked[rows]
     choice = np.full(nf, -1)
-    for k in range(2):
-        # first pass without the masked features, second with the intensity priors (and the
-        # predicted S/N) of the lines matched in the first
+    for _ in range(2):
+        # second pass with the intensity priors (and predicted S/N) of the lines matched in
+        # the first; in the first no group scale is known, so masked features take no line
         ll = base + _priors(np.where(masked, -1, choice), flux, st, gcode, rows, cols, snr,
                             presence, masked=on_mask)
-        if k == 0:
-            ll[on_mask] = _EXCLUDED
         choice = _choose(rows, cols, ll, nf, comp)
     # blends may share a line: a blended feature left without one keeps its best candidate,
     # if that is likelier than "unidentified"
@@ -254,8 +252,8 @@ def _presence_prior(presence, scale, flux, strength, rows, cols, snr, masked=Non
     out = presence.copy()
     out[ok] = np.maximum(presence[ok], np.log(np.minimum(expected[ok] / DETECTION_SNR, 1.0)))
     if masked is not None:
-        out[masked] = np.where(ok[masked] & (np.where(ok, expected, 0.0)[masked] >= DETECTION_SNR),
-                               0.0, _EXCLUDED)
+        loud = ok & (np.nan_to_num(expected) >= DETECTION_SNR)
+        out[masked] = np.where(loud[masked], 0.0, _EXCLUDED)
     return out
 
 
