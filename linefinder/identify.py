@@ -301,7 +301,8 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     if z is not None:
         zmin = zmax = z
     names = list(species) if species else default_species(reg)
-    window = _observed_window(feature_result, np.log(lam) if len(lam) else np.zeros(0))
+    y = np.log(lam) if len(lam) else np.zeros(0)
+    window = _observed_window(feature_result, y)
     if len(lam):
         # the whole observed window, not just the features' span: a line expected beyond the
         # reddest (or bluest) feature and absent is evidence too
@@ -330,7 +331,6 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     line_weight = np.where(_is_primary(cat), 1.0, 0.5) if len(cat) else np.zeros(0)
     multiplet = _multiplet_codes(cat)
     x = np.log(cat["wavelength_vacuum"].to_value(u.m)) if len(cat) else np.zeros(0)
-    y = np.log(lam) if len(lam) else np.zeros(0)
     comp = _companions(companions and main_kind == "emission" and reg == "optical"
                        and not is_freq_axis and len(cat) > 0, lmin, lmax, r_grid, extra_lines)
     # the search sees the hydrogenic lines and the companions (COMPANION_WEIGHT, own groups of
@@ -429,7 +429,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     if status == "none" and z is None and len(cat):
         result.single_line_readings = _readings(
             use, kinds_arr, main_kind, snr_arr, snr, y, sy, x, strength, group, cat, comp,
-            s_lo, s_hi, window)
+            x_comp, s_lo, s_hi, window)
     if best_s is not None and (status != "none" or z is not None):
         zz = float(np.expm1(best_s))
         zerr = sols[0].z_err if sols else 0.0
@@ -525,7 +525,7 @@ def _defer_to_primary(x, strength, secondary, fwhm_ln, factor=0.1):
 
 
 def _readings(use, kinds_arr, main_kind, snr_arr, snr, y, sy, x, strength, group, cat,
-              comp, s_lo, s_hi, window):
+              comp, x_comp, s_lo, s_hi, window):
     """Single-line readings of the strongest clear feature (S/N 1.5 times the detection
     limit, above what noise gives), against the strong hydrogenic and companion lines."""
     ok = use & (kinds_arr == main_kind) & (np.nan_to_num(snr_arr) >= 1.5 * snr)
@@ -533,14 +533,16 @@ def _readings(use, kinds_arr, main_kind, snr_arr, snr, y, sy, x, strength, group
         return []
     i = int(np.flatnonzero(ok)[np.argmax(snr_arr[ok])])
     nc = len(comp)
-    xs = np.concatenate([x, np.log([c["rest_vacuum_m"] for c in comp]) if nc else np.zeros(0)])
+    xs = np.concatenate([x, x_comp])
     # companions of one ion form a group ([O III] 4960 predicts 5008 at three times its
     # flux); their typical fluxes set the ratios
     ion = [c["name"].rsplit(" ", 1)[0] for c in comp]
-    top = {k: max(c["strength"] for c, name in zip(comp, ion) if name == k) for k in set(ion)}
+    top = {}
+    for c, name in zip(comp, ion):
+        top[name] = max(top.get(name, 0.0), c["strength"])
     st = np.concatenate([strength, [c["strength"] / top[name] if top[name] > 0 else 0.0
                                     for c, name in zip(comp, ion)]])
-    gr = np.concatenate([np.asarray(group, dtype=str), [f"companion|{i}" for i in ion]])
+    gr = np.concatenate([np.asarray(group, dtype=str), [f"companion|{name}" for name in ion]])
     # read as the strong ones only: strong in their group, and (companions) strong beside H
     readable = (st >= READING_STRENGTH) & np.concatenate(
         [np.ones(len(x), bool), np.array([c["strength"] >= READING_STRENGTH for c in comp], bool)])
