@@ -157,4 +157,5 @@ def test_one_line_gets_readings_not_a_redshift(rng):
     assert np.all(np.diff([r["z"] for r in res.single_line_readings]) >= 0)
     # a spectrum with a redshift has no readings
     spec2, _ = make_spectrum(rng, z=0.2, snr=40, resolution=2000, contaminants=False)
-    assert identify(spec2).status == "secure" and identify(spec2).single_line_readings == []
+    res2 = identify(spec2)
+    assert res2.status == "secure" and res2.single_line_readings == []
