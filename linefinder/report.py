@@ -67,7 +67,7 @@ def summary(result, *, unit=None):
             "n_lines": best.n_lines if best else 0,
             "alternatives": _alternatives(result),
             "systems": [{"z": s.z, "z_err": s.z_err, "n_lines": s.n_lines} for s in result.systems],
-            "single_line_readings": list(getattr(result, "single_line_readings", [])),
+            "single_line_readings": list(result.single_line_readings),
             "features": feats, "unidentified": unid, "unit": str(cu),
             "medium": result.meta.get("medium"), "meta": {k: v for k, v in result.meta.items()
                                                            if k != "catalogue"}}
