@@ -17,7 +17,7 @@ import numpy as np
 from scipy.linalg import solveh_banded
 from scipy.ndimage import maximum_filter1d, median_filter
 
-__all__ = ["robust_noise", "fit_continuum"]
+__all__ = ["robust_noise", "fit_continuum", "find_steps"]
 
 
 def robust_noise(y, good, *, window=101):
@@ -75,32 +75,41 @@ class _UniformSpline:
         # seven weighted moments of t, without forming the ten products per pixel
         self.prod = np.array([np.convolve(_BASIS_POLY[a], _BASIS_POLY[b]) for a, b in self.pairs])
 
-    def fit(self, y, w2, full_diag=None):
+    def _project(self, w2y):
+        """sum over pixels of w2y * B_j for every coefficient j."""
+        m = self.m
+        ymom = np.empty((4, m))
+        qy = w2y
+        for p in range(4):
+            ymom[p] = np.add.reduceat(qy, self.starts)
+            qy = qy * self.t
+        proj = _BASIS_POLY @ ymom           # (4, m): sums of w2 y B_a per interval
+        rhs = np.zeros(self.n_coef)
+        for a in range(4):
+            rhs[a:a + m] += proj[a]
+        return rhs
+
+    def fit(self, y, w2, full_diag=None, steps=None):
         """Coefficients minimising sum w2 (y - s)^2 (+ the penalty).
 
         `full_diag`: the normal-matrix diagonal with every valid pixel used; a
         coefficient that keeps less than half of that support (excluded or
-        clipped pixels) counts as weakly constrained."""
+        clipped pixels) counts as weakly constrained.  `steps`: first pixels of
+        continuum steps; each adds a Heaviside term to the model, fitted with
+        the spline.  Returns (coefficients, step amplitudes)."""
         nc, m = self.n_coef, self.m
         # sums over each knot interval (pixels of one interval are contiguous)
         mom = np.empty((7, m))
-        ymom = np.empty((4, m))
-        q, qy = w2, w2 * y
+        q = w2
         for p in range(7):
             mom[p] = np.add.reduceat(q, self.starts)
-            if p < 4:
-                ymom[p] = np.add.reduceat(qy, self.starts)
-                qy = qy * self.t if p < 3 else qy
             q = q * self.t if p < 6 else q
         gram = self.prod @ mom              # (10, m): sums of w2 B_a B_b per interval
-        proj = _BASIS_POLY @ ymom           # (4, m): sums of w2 y B_a per interval
         ab = np.zeros((4, nc))          # upper banded form for solveh_banded
-        rhs = np.zeros(nc)
         for k, (a, b) in enumerate(self.pairs):
             # interval i adds to A[i+a, i+b]: band d = b - a, stored at ab[3 - d, column i + b]
             ab[3 - (b - a), b:b + m] += gram[k]
-        for a in range(4):
-            rhs[a:a + m] += proj[a]
+        rhs = self._project(w2 * y)
         if nc >= 3:
             # second-difference penalty, rows k of D2 = (1, -2, 1) at columns k..k+2: faint
             # everywhere, as strong as the data where a row touches a coefficient that the
@@ -119,7 +128,18 @@ class _UniformSpline:
             for a, ca in enumerate(_D2):
                 for b in range(a, 3):
                     ab[3 - (b - a)] += ca * _D2[b] * np.bincount(k + b, weights=lam, minlength=nc)
-        return solveh_banded(ab, rhs, check_finite=False)
+        if not steps:
+            return solveh_banded(ab, rhs, check_finite=False), np.zeros(0)
+        # Heaviside columns H_k by block elimination: A c + C a = r, C^T c + D a = e
+        n = len(y)
+        H = [(np.arange(n) >= p).astype(float) for p in steps]
+        C = np.column_stack([self._project(w2 * h) for h in H])
+        D = np.array([[np.sum(w2 * hk * hl) for hl in H] for hk in H])
+        e = np.array([np.sum(w2 * hk * y) for hk in H])
+        sol = solveh_banded(ab, np.column_stack([rhs, C]), check_finite=False)
+        a_r, a_c = sol[:, 0], sol[:, 1:]
+        amps = np.linalg.solve(D - C.T @ a_c + 1e-12 * np.trace(D) * np.eye(len(H)), e - C.T @ a_r)
+        return a_r - a_c @ amps, amps
 
     def diag(self, w2):
         """Diagonal of the normal matrix for weights w2."""
@@ -144,10 +164,95 @@ _D2 = (1.0, -2.0, 1.0)
 _BASIS_POLY = np.array([[1, -3, 3, -1], [4, 0, -6, 3], [1, 3, 3, -3], [0, 0, 0, 1]]) / 6.0
 
 
-def fit_continuum(y, sigma, good, *, knot_px=60, clip=(3.0, 3.0), iterations=15, grow=2,
-                  exclude=None):
-    """Continuum of one segment; returns (continuum, pixels used)."""
+def find_steps(y, sigma, good, *, width_px=25, gap_px=5, min_sigma=8.0, min_fraction=0.15,
+               flat=0.25, scales=3):
+    """Pixels where the continuum steps from one level to another (a Lyman break, a
+    badly joined order); returns a sorted array of pixel indices (the first pixel of the
+    new level).
+
+    Medians of `width_px` pixels either side of each pixel (`gap_px` left out
+    between them; medians of 5-pixel block medians, every fifth of a window) are
+    compared: a step differs by `min_sigma` standard errors of the medians and by
+    `min_fraction` of the higher level, and each level is flat: the medians one
+    and two windows further out differ from it by less than `flat` times the
+    step, so that the flanks of a broad line or of a series-limit trough are not
+    taken for one.  Windows of 1, 2, 4 ... (`scales`) times `width_px` are
+    tried, so that a faint continuum's step is found in the wider ones.  The
+    step is then put where a two-level model fits best (least absolute
+    deviations).
+    """
     n = len(y)
+    ok_px = good & np.isfinite(y)
+    g = max(int(gap_px), 1)
+    if ok_px.sum() < 4 * max(int(width_px), 5) + 2 * g:
+        return np.zeros(0, int)
+    if ok_px.all():
+        v = y
+    else:                                          # masked pixels bridged for the medians
+        idx = np.flatnonzero(ok_px)
+        v = np.interp(np.arange(n), idx, y[idx])
+    sig = np.where(np.isfinite(sigma) & (sigma > 0), sigma, np.nan)
+    steps = []
+    # medians of blocks of b pixels, and of runs of 5 x 2^level blocks: a median of medians
+    # stands for the running median of a window (fine enough to find a step; its pixel
+    # comes from the two-level fit below)
+    W0 = max(int(width_px), 5)
+    b = max(W0 // 5, 1)
+    nb = n // b
+    blocks = np.median(v[:nb * b].reshape(nb, b), axis=1)
+    # standard error of a median (of medians) of W Gaussian pixels, in sigma / sqrt(W):
+    # sqrt(pi / 2) for a plain median; about 1.5 for a median of medians of 5-pixel blocks
+    # (1.46 by simulation of white noise)
+    spread = 1.2533 if b == 1 else 1.5
+    for level in range(scales):
+        W = 5 * b * 2 ** level
+        if n < 6 * W + 2 * g + 2:
+            break
+        run, q = 5 * 2 ** level, 2 ** level
+        med = np.median(np.lib.stride_tricks.sliding_window_view(blocks, run)[::q], axis=1)
+        h = W // 2
+        i = np.arange(0, nb * b, q * b)    # pixels examined; med[k] is centred on h + k q b
+
+        def at(j):
+            k = np.rint((j - h) / (q * b)).astype(int)
+            inside = (k >= 0) & (k < len(med))
+            return np.where(inside, med[np.clip(k, 0, len(med) - 1)], np.nan)
+
+        left, right = at(i - g - h - 1), at(i + g + h)
+        left2, right2 = at(i - g - h - 1 - W), at(i + g + h + W)
+        left3, right3 = at(i - g - h - 1 - 2 * W), at(i + g + h + 2 * W)
+        d = right - left
+        with np.errstate(all="ignore"):
+            score = np.abs(d) / (spread * sig[i] * np.sqrt(2.0 / W))
+            ok = (score > min_sigma) & (np.abs(d) > min_fraction * np.fmax(np.abs(left),
+                                                                           np.abs(right))) \
+                & (np.abs(right2 - right) < flat * np.abs(d)) \
+                & (np.abs(left2 - left) < flat * np.abs(d)) \
+                & (np.abs(right3 - right) < flat * np.abs(d)) \
+                & (np.abs(left3 - left) < flat * np.abs(d))
+        ok &= np.isfinite(score)
+        for m in np.flatnonzero(ok)[np.argsort(-score[ok])]:
+            k = int(i[m])
+            if any(abs(k - p) < 4 * W for p in steps):
+                continue
+            # the best place within +/- W of k: two levels, least absolute deviations
+            lo, hi = max(k - W - g, 0), min(k + W + g, n)
+            seg = np.where(ok_px[lo:hi], y[lo:hi], np.nan)
+            if np.isfinite(seg).sum() < 2 * W:
+                continue
+            cost = np.nancumsum(np.abs(seg - left[m])) - np.nancumsum(np.abs(seg - right[m]))
+            steps.append(int(lo + np.argmin(cost) + 1))
+    return np.sort(np.asarray(steps, int))
+
+
+def fit_continuum(y, sigma, good, *, knot_px=60, clip=(3.0, 3.0), iterations=15, grow=2,
+                  exclude=None, steps=None):
+    """Continuum of one segment; returns (continuum, pixels used).  With `steps`
+    (pixel indices, from `find_steps`), the spline carries a jump at each: one
+    smooth curve plus Heaviside terms fitted with it, so that the continuum under
+    a line on a step is constrained from both sides."""
+    n = len(y)
+    steps = [int(p) for p in (steps if steps is not None else []) if 8 <= p <= n - 8]
     use = good.copy()
     if exclude is not None:
         use &= ~exclude
@@ -163,7 +268,10 @@ def fit_continuum(y, sigma, good, *, knot_px=60, clip=(3.0, 3.0), iterations=15,
         if use.sum() < 8:
             break
         try:
-            new = spline(spline.fit(y0, np.where(use, w2, 0.0), full))
+            coef, amps = spline.fit(y0, np.where(use, w2, 0.0), full, steps=steps)
+            new = spline(coef)
+            for p, a in zip(steps, amps):
+                new[p:] += a
         except (ValueError, np.linalg.LinAlgError):
             new = np.full(n, np.median(y[use]))
         resid = (y0 - new) * w

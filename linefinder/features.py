@@ -20,6 +20,7 @@ For each contiguous segment of a prepared spectrum:
 """
 
 import bisect
+from functools import partial
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -27,7 +28,7 @@ from astropy.table import QTable
 from scipy.ndimage import correlate1d, maximum_filter1d
 from scipy.signal import find_peaks, oaconvolve
 
-from .continuum import fit_continuum, robust_noise
+from .continuum import find_steps, fit_continuum as _fit_continuum, robust_noise
 from .errors import SpectrumFormatError
 from .profiles import GAUSS_FWHM, GroupProblem, fit_groups
 from .spectrum import prepare, segments
@@ -550,6 +551,20 @@ def _spikes(y, cont, sig, good, fwhm_px):
     return out
 
 
+def _snap_steps(steps, feats, reach):
+    """Continuum steps with an emission line on them, put at the line's centre (Lyα at a
+    Lyman break: the forest absorbs from the line's own wavelength blueward; the
+    placement from the levels alone is pulled to the line's foot).  Steps with no
+    emission line are dropped: the merged lines below a series limit in absorption
+    make level changes that must stay lines, not continuum."""
+    out = []
+    for p in steps:
+        near = [f for f in feats if f["amp0"] > 0 and abs(f["px"] - p) <= reach]
+        if near:
+            out.append(int(np.ceil(max(near, key=lambda f: f["amp0"])["px"])))
+    return np.asarray(out, int)
+
+
 def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
     n = len(y)
     w = np.where(good & np.isfinite(sig) & (sig > 0), 1.0 / np.where(sig > 0, sig, 1) ** 2, 0.0)
@@ -557,6 +572,10 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
     # first guess with wide knots, so that lines broader than the resolution element (galaxy
     # velocity widths at high R) are not absorbed before they are seen
     first_knots = max(base_knots, min(n / 10, 400))
+    # continuum steps (a Lyman break, a badly joined order): the continuum may jump there
+    # (used only where an emission line stands on one: see `_snap_steps`)
+    steps = find_steps(y, sig, good, width_px=max(25, 10 * fwhm_px), gap_px=max(3, 2 * fwhm_px))
+    fit_continuum = _fit_continuum
     cont, _ = fit_continuum(y, sig, good, knot_px=min(first_knots, max(n // 3, 8)))
     spikes = _spikes(y, cont, sig, good, fwhm_px)
     if spikes.any():
@@ -569,6 +588,9 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
         feats = _new_feats(_candidates(y - cont, w, fwhm_px, threshold, kinds, n, den_cache), [])
         if not feats:
             break
+        if len(steps):
+            steps = _snap_steps(steps, feats, max(25, 10 * fwhm_px))
+            fit_continuum = partial(_fit_continuum, steps=steps)
         # widths from the matched-filter scale (within a factor ~1.4): no profile fits yet
         broad = [f for f in feats if f["amp0"] < 0 and f["fwhm_px"] > 6 * fwhm_px]
         if broad:
