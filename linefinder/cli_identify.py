@@ -5,7 +5,7 @@ import sys
 
 from .cli_spectrum import add_spectrum_options, kinds_from_args, load_input
 from .identify import identify, read_line_list
-from .report import summary, write_report
+from .report import lyman_break_text, summary, write_report
 from .tables_io import json_default
 
 __all__ = ["register"]
@@ -35,6 +35,8 @@ def _print_summary(res, s, source):
             f"{r['label']} at z = {r['z']:.4f}" for r in s["single_line_readings"][:8])
             + (" ..." if len(s["single_line_readings"]) > 8 else "")
             + " (other lines of each series would fall outside the window or below detection)")
+    if s["lyman_break"]:
+        print(lyman_break_text(s["lyman_break"]))
     for r in s["features"]:
         name = r["label"] or (f"[user] {r['user_line']}" if r["user_line"] else
                               (f"[companion] {r['companion']}" if r["companion"] else "unidentified"))
@@ -65,7 +67,7 @@ def _cmd_redshift(args):
            "velocity_err_kms": s["velocity_err_kms"], "velocity_convention": s["velocity_convention"],
            "lines": s["lines"], "companion_lines": s["companion_lines"],
            "alternatives": s["alternatives"], "systems": s["systems"],
-           "single_line_readings": s["single_line_readings"]}
+           "single_line_readings": s["single_line_readings"], "lyman_break": s["lyman_break"]}
     if args.format == "json":
         json.dump(out, sys.stdout, indent=1, ensure_ascii=False, default=json_default)
         sys.stdout.write("\n")

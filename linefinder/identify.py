@@ -31,6 +31,7 @@ from .companions import companion_lines
 from .contaminants import sky_mask
 from .doppler import C_KMS
 from .matching import CASE_B_HBETA, assign
+from .lyman_break import continuum_step, is_break, mean_transmission
 from .medium import air_to_vacuum
 from .redshift import _within, classify, refine, search_shift, solution_probability
 from .single_line import READING_STRENGTH, single_line_readings
@@ -60,6 +61,8 @@ class Identification:
     meta: dict = field(default_factory=dict)
     #: with status "none": what the strongest feature could be on its own (`single_line`)
     single_line_readings: list = field(default_factory=list)
+    #: a lone emission line named Lyα by the continuum break at its foot (`lyman_break`)
+    lyman_break: dict = None
 
 
 def regime(lam_vac_m):
@@ -314,10 +317,13 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     else:
         lam_rest_min, lam_rest_max = 1e-10, 1e-5
     lower, upper = _n_ranges(reg, lam_rest_min, lam_rest_max)
+    # features on masked sky lines or telluric bands are no evidence for the redshift, nor
+    # for the kind of spectrum (sky residuals come with either sign)
+    use = ~((sky & mask_sky) | (telluric & mask_telluric))
     snr_kind = np.nan_to_num(np.asarray(feats["snr"], dtype=float)) if len(feats) else np.zeros(0)
     kinds_arr = np.asarray(feats["kind"]).astype(str) if len(feats) else np.zeros(0, str)
-    main_kind = "absorption" if snr_kind[kinds_arr == "absorption"].sum() > \
-        snr_kind[kinds_arr == "emission"].sum() else "emission"
+    main_kind = "absorption" if snr_kind[use & (kinds_arr == "absorption")].sum() > \
+        snr_kind[use & (kinds_arr == "emission")].sum() else "emission"
     # a slightly wider range and R on coarse grids, so that spectra of one survey share it
     q = 0.05
     lmin = float(np.exp(np.floor(np.log(lam_rest_min) / q) * q))
@@ -344,7 +350,6 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                      intensity_strength=np.concatenate([strength, np.zeros(nc)]))
     snr_arr = np.asarray(feats["snr"], dtype=float) if len(feats) else np.zeros(0)
     w = np.log1p(np.clip(np.nan_to_num(snr_arr, nan=5.0), 0, 1e4))
-    use = ~((sky & mask_sky) | (telluric & mask_telluric))
     fwhm_feat = _width_ln(feats)
     s_lo, s_hi = np.log1p(zmin), np.log1p(zmax)
     anchors = np.flatnonzero(strength >= 0.02)
@@ -367,6 +372,29 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
         sol.s = float(np.log1p(z))
         sols = [sol] if sol.n_lines else []
     status = classify(sols)
+    readings, lyman = [], None
+    if status == "none" and z is None and len(cat):
+        cand = _reading_candidate(use, kinds_arr, main_kind, snr_arr, snr)
+        readings = _readings(cand, use, snr_arr, snr, y, sy, x, strength, group, cat, comp,
+                             x_comp, s_lo, s_hi, window) if cand is not None else []
+        if feature_result is not None and main_kind == "emission" and reg == "optical" \
+                and not is_freq_axis:
+            lyman = _lyman_break(feature_result, cand, readings, y, fwhm_feat)
+        if lyman is not None:
+            # Lyα named by the continuum break at its foot: the z of that one line, refined
+            # with whatever else (companions, Lyβ) the catalogue puts in the window there
+            # (emission features only: a residual dip on the line's flank is not it)
+            em = use & (kinds_arr == "emission")
+            sol = refine(np.log1p(lyman["z"]), y[em], sy[em], w[em], xs, st_s,
+                         np.ones(len(xs), bool), window=window, fwhm_ln=1.0 / R,
+                         half_width=fwhm_feat[em] / 2, **search_kw)
+            sol = _reindex(sol, np.flatnonzero(em))
+            if any(i == cand and str(cat["label"][j]) == "Lyα" for i, j, _ in sol.matches
+                   if j < len(cat)):
+                sols, status, readings = [sol], "tentative", []
+                sol.status = status
+            else:
+                lyman = None
     best_s = sols[0].s if sols else (np.log1p(z) if z is not None else None)
     out = _feature_table(feats, sky, telluric, mask_sky, mask_telluric)
     # companions (their typical strengths) and user lines (strength 1: the user expects them)
@@ -425,11 +453,8 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                                    more[0].s, x, line_weight < 1)
                 _fill(out, rest, res2, cat, y[rest], more[0].s, None, system=2)
     result = Identification(features=out, status=status, solutions=sols, lines=cat,
-                            feature_result=feature_result, systems=systems)
-    if status == "none" and z is None and len(cat):
-        result.single_line_readings = _readings(
-            use, kinds_arr, main_kind, snr_arr, snr, y, sy, x, strength, group, cat, comp,
-            x_comp, s_lo, s_hi, window)
+                            feature_result=feature_result, systems=systems,
+                            single_line_readings=readings, lyman_break=lyman)
     if best_s is not None and (status != "none" or z is not None):
         zz = float(np.expm1(best_s))
         zerr = sols[0].z_err if sols else 0.0
@@ -524,14 +549,52 @@ def _defer_to_primary(x, strength, secondary, fwhm_ln, factor=0.1):
     return out
 
 
-def _readings(use, kinds_arr, main_kind, snr_arr, snr, y, sy, x, strength, group, cat,
-              comp, x_comp, s_lo, s_hi, window):
-    """Single-line readings of the strongest clear feature (S/N 1.5 times the detection
-    limit, above what noise gives), against the strong hydrogenic and companion lines."""
+def _reading_candidate(use, kinds_arr, main_kind, snr_arr, snr):
+    """The strongest clear feature (S/N 1.5 times the detection limit, above what noise
+    gives) of the main kind, or None."""
     ok = use & (kinds_arr == main_kind) & (np.nan_to_num(snr_arr) >= 1.5 * snr)
     if not np.any(ok):
-        return []
-    i = int(np.flatnonzero(ok)[np.argmax(snr_arr[ok])])
+        return None
+    return int(np.flatnonzero(ok)[np.argmax(snr_arr[ok])])
+
+
+def _lyman_break(feature_result, cand, readings, y, fwhm_ln):
+    """The continuum step at feature `cand` when it may be Lyα (a single-line reading) and
+    the continuum drops blueward of it (`lyman_break.is_break`); a dict for the result's
+    ``lyman_break`` (with the reading's ``z``), else None."""
+    lya = [r for r in readings if r["label"] == "Lyα" and r["species"] == "H I"]
+    if cand is None or not lya:
+        return None
+    spec = feature_result.spectrum
+    ln_axis = _vacuum_ln_axis(spec)
+    others = np.ones(len(y), bool)
+    others[cand] = False
+    # other features' pixels left out (+/- 2 FWHM; unknown widths: 3 resolution elements)
+    R = float(feature_result.meta.get("resolution") or 2000.0)
+    half = 2.0 * np.where(fwhm_ln[others] > 0, fwhm_ln[others], 1.5 / R)
+    yo = y[others]
+    order = np.argsort(ln_axis)
+    ax = ln_axis[order]
+    exclude = np.zeros(len(ax), bool)
+    for a, b in zip(np.searchsorted(ax, yo - half), np.searchsorted(ax, yo + half)):
+        exclude[a:b] = True
+    bad = np.asarray(spec.mask, bool)[order] if spec.mask is not None else np.zeros(len(ax), bool)
+    flux = np.asarray(spec.flux.value, dtype=float)[order]
+    sigma = np.asarray(feature_result.noise, dtype=float)[order]
+    step = continuum_step(ax, np.where(bad, np.nan, flux), sigma, float(y[cand]),
+                          float(fwhm_ln[cand]) or 1.0 / R, exclude=exclude)
+    if not is_break(step):
+        return None
+    zz = lya[0]["z"]
+    return {"z": zz, "ratio": step["ratio"], "ratio_err": step["ratio_err"],
+            "continuum_snr": step["red_snr"],
+            "expected_transmission": float(mean_transmission(zz)), "feature": int(cand)}
+
+
+def _readings(i, use, snr_arr, snr, y, sy, x, strength, group, cat, comp, x_comp, s_lo, s_hi,
+              window):
+    """Single-line readings of feature `i` (`_reading_candidate`) against the strong
+    hydrogenic and companion lines."""
     nc = len(comp)
     xs = np.concatenate([x, x_comp])
     # companions of one ion form a group ([O III] 4960 predicts 5008 at three times its
@@ -555,15 +618,20 @@ def _readings(use, kinds_arr, main_kind, snr_arr, snr, y, sy, x, strength, group
                                 readable=readable)
 
 
+def _vacuum_ln_axis(spec):
+    """ln of the vacuum wavelength (m) of every pixel of a prepared spectrum."""
+    lam = spec.axis.to_value(u.m, equivalencies=u.spectral())
+    if spec.is_wavelength and spec.medium == "air":
+        lam = air_to_vacuum(lam * u.m).to_value(u.m)
+    return np.log(lam)
+
+
 def _observed_window(feature_result, y):
     """ln(lambda) range searched for features: the spectrum's, else the features' span."""
     if feature_result is not None:
         spec = feature_result.spectrum
-        ax = spec.axis[~spec.mask]
-        lam = ax.to_value(u.m, equivalencies=u.spectral())
-        if spec.is_wavelength and spec.medium == "air":
-            lam = air_to_vacuum(lam * u.m).to_value(u.m)
-        return float(np.log(lam.min())), float(np.log(lam.max()))
+        ln_lam = _vacuum_ln_axis(spec)[~spec.mask]
+        return float(ln_lam.min()), float(ln_lam.max())
     if len(y):
         return float(y.min() - 0.01), float(y.max() + 0.01)
     return None

@@ -11,7 +11,7 @@ from .doppler import C_KMS
 from .errors import OutputExistsError
 from .tables_io import json_default
 
-__all__ = ["summary", "write_report"]
+__all__ = ["summary", "write_report", "lyman_break_text"]
 
 
 def _alternatives(result):
@@ -68,9 +68,18 @@ def summary(result, *, unit=None):
             "alternatives": _alternatives(result),
             "systems": [{"z": s.z, "z_err": s.z_err, "n_lines": s.n_lines} for s in result.systems],
             "single_line_readings": list(result.single_line_readings),
+            "lyman_break": dict(result.lyman_break) if result.lyman_break else None,
             "features": feats, "unidentified": unid, "unit": str(cu),
             "medium": result.meta.get("medium"), "meta": {k: v for k, v in result.meta.items()
                                                            if k != "catalogue"}}
+
+
+def lyman_break_text(b):
+    """One sentence on a Lyα named by its continuum break (summary's ``lyman_break``)."""
+    return (f"One clear line, named Lyα by the continuum break at its blue foot: blue/red "
+            f"continuum ratio {b['ratio']:.2f} ± {b['ratio_err']:.2f} (mean Lyα-forest "
+            f"transmission at z = {b['z']:.3f}: {b['expected_transmission']:.2f}). Lyα emission "
+            f"usually sits a few hundred km/s redward of the systemic redshift.")
 
 
 def _zoom(axz, result, sel, unit, title, max_lines=8):
@@ -303,6 +312,8 @@ def write_report(result, folder, *, force=False, source=""):
             f"{r['label']} at z = {r['z']:.4f} ± {r['z_err']:.1e}" for r in summ["single_line_readings"])
             + " (each reading leaves the other lines of its series outside the window or below"
             " detection; settle it with more data).</p>")
+    if summ.get("lyman_break"):
+        readings += f"<p>{lyman_break_text(summ['lyman_break'])}</p>"
     html = f"""<!DOCTYPE html><html><head><meta charset="utf-8"><title>linefinder report</title>
 <style>body{{font-family:sans-serif;margin:2em}}table{{border-collapse:collapse}}
 td,th{{border:1px solid #ccc;padding:2px 6px;font-size:90%}}</style></head><body>

@@ -4,7 +4,10 @@ Everything here is invented data in scenarios of this project's own: narrow
 emission-line sources and absorption systems at a redshift between 0 and 7,
 seen by a spectrograph of resolving power 500-50 000 in the 3000-25 000 Å
 window, with non-hydrogenic lines, night-sky residuals and cosmic-ray spikes
-injected.  Line positions come from `build_catalogue` (vacuum); the other
+injected.  Emission sources are seen through the Lyα forest: their
+continuum blueward of Lyα is depressed by the mean transmission of
+`lyman_break.mean_transmission` (the Lyα forest only; the higher Lyman
+series and the Lyman limit are left out).  Line positions come from `build_catalogue` (vacuum); the other
 lines use rest wavelengths recalled from the NIST ASD (vacuum Å, to the
 digits shown).
 
@@ -25,6 +28,7 @@ from .companions import COMPANION_LINES
 from .contaminants import SKY_LINES_AIR
 from .doppler import C_KMS
 from .matching import CASE_B_HBETA
+from .lyman_break import LYA_REST_VACUUM_AA, mean_transmission
 from .medium import air_to_vacuum
 from .profiles import GAUSS_FWHM
 from .spectrum import SpectrumData
@@ -144,6 +148,11 @@ def make_spectrum(rng, *, z, snr, resolution, kind="emission", velocity_fwhm_kms
                                                           rest["rel_intensity"])}
     if kind == "emission":
         cont = 5.0 * (lam / lam[0]) ** rng.uniform(-1.5, 0.5)
+        # the Lyα forest in front of the source: its continuum blueward of its Lyα is
+        # depressed by the mean transmission at the absorbers' redshift (the lines are
+        # left as they are: their strengths above are already those seen)
+        z_abs = lam / LYA_REST_VACUUM_AA - 1
+        cont = np.where(z_abs < z, cont * mean_transmission(z_abs), cont)
         strengths = [_emission_strength(int(r["n_lower"]), int(r["n_upper"]), rel)
                      for r in inside]
     else:
