@@ -8,8 +8,8 @@ identify runs with its defaults (companion lines on) plus the sky mask
 log-uniform 3-100, R log-uniform 500-50 000, 70 % emission / 30 % absorption,
 each spectrum covering a factor 2.8 in wavelength (3500-9800 Å say: a survey
 spectrograph or a merged echelle; --max-pixels 6000 narrows high-R windows),
-non-hydrogen lines, sky residuals and cosmic-ray spikes; plus pure-noise
-spectra.  Prints what it measured against the targets; asserts nothing.
+non-hydrogen lines, sky residuals and cosmic-ray spikes, emitters' continua
+blueward of Lyα at the mean Lyα-forest transmission; plus pure-noise spectra.  Prints what it measured against the targets; asserts nothing.
 
 Definitions
 * correct z: |z - z_true| < 5e-4 (1 + z_true).
@@ -66,7 +66,8 @@ def _run_one(args):
             "n_lines": sols[0].n_lines if sols else 0,
             "z_best": sols[0].z if sols else None,
             "features": feats, "seconds": dt, "n_pixels": len(spec),
-            "readings": [r["z"] for r in res.single_line_readings]}
+            "readings": [r["z"] for r in res.single_line_readings],
+            "lyman_break": res.lyman_break is not None}
 
 
 def _near(feat, obs):
@@ -106,6 +107,11 @@ def evaluate(results):
                  f"{len(hit)} ({100 * len(hit) / max(len(read), 1):.0f} %), "
                  f"{np.mean([len(r['readings']) for r in read]) if read else 0:.1f} readings each; "
                  f"on pure noise: {sum(bool(r.get('readings')) for r in noise)}/{len(noise)} spectra")
+    # lone lines named Lyα by the continuum break at their foot
+    brk = [r for r in good if r.get("lyman_break")]
+    lines.append(f"named Lyα by the continuum break: {len(brk)} spectra, z right in "
+                 f"{sum(correct(r) for r in brk if r['truth']['kind'] != 'noise')}; on pure noise: "
+                 f"{sum(r['truth']['kind'] == 'noise' for r in brk)}/{len(noise)}")
     lines.append("status x outcome (all spectra with lines): " +
                  ", ".join(f"{a}/{b}: {n}" for (a, b), n in sorted(status_counts.items())))
     # z scatter against the Cramer-Rao bound: of the whole spectrum (overlaps included, the

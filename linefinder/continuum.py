@@ -165,7 +165,7 @@ _BASIS_POLY = np.array([[1, -3, 3, -1], [4, 0, -6, 3], [1, 3, 3, -3], [0, 0, 0, 
 
 
 def find_steps(y, sigma, good, *, width_px=25, gap_px=5, min_sigma=8.0, min_fraction=0.15,
-               flat=0.25, scales=3):
+               flat=0.25, scales=5):
     """Pixels where the continuum steps from one level to another (a Lyman break, a
     badly joined order); returns a sorted array of pixel indices (the first pixel of the
     new level).
@@ -173,11 +173,12 @@ def find_steps(y, sigma, good, *, width_px=25, gap_px=5, min_sigma=8.0, min_frac
     Medians of `width_px` pixels either side of each pixel (`gap_px` left out
     between them; medians of 5-pixel block medians, every fifth of a window) are
     compared: a step differs by `min_sigma` standard errors of the medians and by
-    `min_fraction` of the higher level, and each level is flat: the medians one
-    and two windows further out differ from it by less than `flat` times the
-    step, so that the flanks of a broad line or of a series-limit trough are not
-    taken for one.  Windows of 1, 2, 4 ... (`scales`) times `width_px` are
-    tried, so that a faint continuum's step is found in the wider ones.  The
+    `min_fraction` of the higher level, and each level is straight: over it and
+    the two windows further out the medians change by less than `flat` times
+    the step from one window to the next and bend by less than that, so that a
+    gently sloping continuum passes and the flanks of a broad line or of a
+    series-limit trough are not taken for a step.  Windows of 1, 2, 4 ...
+    (`scales`) times `width_px` are tried, so that a faint continuum's step is found in the wider ones.  The
     step is then put where a two-level model fits best (least absolute
     deviations).
     """
@@ -228,8 +229,8 @@ def find_steps(y, sigma, good, *, width_px=25, gap_px=5, min_sigma=8.0, min_frac
                                                                            np.abs(right))) \
                 & (np.abs(right2 - right) < flat * np.abs(d)) \
                 & (np.abs(left2 - left) < flat * np.abs(d)) \
-                & (np.abs(right3 - right) < flat * np.abs(d)) \
-                & (np.abs(left3 - left) < flat * np.abs(d))
+                & (np.abs(right - 2 * right2 + right3) < flat * np.abs(d)) \
+                & (np.abs(left - 2 * left2 + left3) < flat * np.abs(d))
         ok &= np.isfinite(score)
         for m in np.flatnonzero(ok)[np.argsort(-score[ok])]:
             k = int(i[m])

@@ -551,17 +551,26 @@ def _spikes(y, cont, sig, good, fwhm_px):
     return out
 
 
-def _snap_steps(steps, feats, reach):
-    """Continuum steps with an emission line on them, put at the line's centre (Lyα at a
-    Lyman break: the forest absorbs from the line's own wavelength blueward; the
-    placement from the levels alone is pulled to the line's foot).  Steps with no
-    emission line are dropped: the merged lines below a series limit in absorption
-    make level changes that must stay lines, not continuum."""
+def _snap_steps(steps, feats, reach, y):
+    """The continuum steps to fit: a step with an emission line on it is put at the line's
+    centre (Lyα at a Lyman break: the forest absorbs from the line's own wavelength
+    blueward; the placement from the levels alone is pulled to the line's foot).  A step
+    with no line on it is kept only when the continuum is lower before it (blueward on a
+    wavelength axis) and no absorption lines crowd the higher side: the merged members
+    below an absorption series limit make a level change that must stay lines, with the
+    resolved members just beyond it."""
     out = []
     for p in steps:
         near = [f for f in feats if f["amp0"] > 0 and abs(f["px"] - p) <= reach]
         if near:
             out.append(int(np.ceil(max(near, key=lambda f: f["amp0"])["px"])))
+            continue
+        lo, hi = max(int(p - 4 * reach), 0), min(int(p + 4 * reach), len(y))
+        rising = np.nanmedian(y[p:hi]) > np.nanmedian(y[lo:p]) if p - lo > 4 and hi - p > 4 \
+            else False
+        crowd = sum(1 for f in feats if f["amp0"] < 0 and p < f["px"] <= p + 8 * reach)
+        if rising and crowd < 2:
+            out.append(int(p))
     return np.asarray(out, int)
 
 
@@ -573,7 +582,8 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
     # velocity widths at high R) are not absorbed before they are seen
     first_knots = max(base_knots, min(n / 10, 400))
     # continuum steps (a Lyman break, a badly joined order): the continuum may jump there
-    # (used only where an emission line stands on one: see `_snap_steps`)
+    # (kept where an emission line stands on one, or where nothing says it is a trough: see
+    # `_snap_steps`)
     steps = find_steps(y, sig, good, width_px=max(25, 10 * fwhm_px), gap_px=max(3, 2 * fwhm_px))
     fit_continuum = _fit_continuum
     cont, _ = fit_continuum(y, sig, good, knot_px=min(first_knots, max(n // 3, 8)))
@@ -589,7 +599,7 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
         if not feats:
             break
         if len(steps):
-            steps = _snap_steps(steps, feats, max(25, 10 * fwhm_px))
+            steps = _snap_steps(steps, feats, max(25, 10 * fwhm_px), y)
             fit_continuum = partial(_fit_continuum, steps=steps)
         # widths from the matched-filter scale (within a factor ~1.4): no profile fits yet
         broad = [f for f in feats if f["amp0"] < 0 and f["fwhm_px"] > 6 * fwhm_px]
