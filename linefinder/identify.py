@@ -31,7 +31,7 @@ from .companions import companion_lines
 from .contaminants import sky_mask
 from .doppler import C_KMS
 from .matching import CASE_B_HBETA, assign
-from .lyman_break import continuum_step, is_break, mean_transmission
+from .lyman_break import WINDOW_LN, continuum_step, is_break, mean_transmission
 from .medium import air_to_vacuum
 from .redshift import _within, classify, refine, search_shift, solution_probability
 from .single_line import READING_STRENGTH, single_line_readings
@@ -376,10 +376,19 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     if status == "none" and z is None and len(cat):
         cand = _reading_candidate(use, kinds_arr, main_kind, snr_arr, snr)
         readings = _readings(cand, use, snr_arr, snr, y, sy, x, strength, group, cat, comp,
-                             x_comp, s_lo, s_hi, window) if cand is not None else []
+                             x_comp, s_lo, s_hi, window, main_kind) if cand is not None else []
         if feature_result is not None and main_kind == "emission" and reg == "optical" \
                 and not is_freq_axis:
-            lyman = _lyman_break(feature_result, cand, readings, y, fwhm_feat)
+            # the break is evidence of its own: the strongest few emission features above
+            # the detection limit are tried, not only the one clear enough to be read alone
+            em_ok = np.flatnonzero(use & (kinds_arr == "emission") & (np.nan_to_num(snr_arr) >= snr))
+            for c in em_ok[np.argsort(-snr_arr[em_ok])][:3]:
+                rd = readings if c == cand else _readings(
+                    c, use, snr_arr, snr, y, sy, x, strength, group, cat, comp, x_comp, s_lo,
+                    s_hi, window, main_kind)
+                lyman = _lyman_break(feature_result, int(c), rd, y, fwhm_feat)
+                if lyman is not None:
+                    break
         if lyman is not None:
             # Lyα named by the continuum break at its foot: the z of that one line, refined
             # with whatever else (companions, Lyβ) the catalogue puts in the window there
@@ -389,8 +398,8 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                          np.ones(len(xs), bool), window=window, fwhm_ln=1.0 / R,
                          half_width=fwhm_feat[em] / 2, **search_kw)
             sol = _reindex(sol, np.flatnonzero(em))
-            if any(i == cand and str(cat["label"][j]) == "Lyα" for i, j, _ in sol.matches
-                   if j < len(cat)):
+            if any(i == lyman["feature"] and str(cat["label"][j]) == "Lyα"
+                   for i, j, _ in sol.matches if j < len(cat)):
                 sols, status, readings = [sol], "tentative", []
                 sol.status = status
             else:
@@ -567,7 +576,9 @@ def _lyman_break(feature_result, cand, readings, y, fwhm_ln):
         return None
     spec = feature_result.spectrum
     ln_axis = _vacuum_ln_axis(spec)
-    others = np.ones(len(y), bool)
+    # (features much broader than the windows are left in: the trace of a continuum that
+    # did not follow the step, not lines)
+    others = np.ones(len(y), bool) & (fwhm_ln < WINDOW_LN / 3)
     others[cand] = False
     # other features' pixels left out (+/- 2 FWHM; unknown widths: 3 resolution elements)
     R = float(feature_result.meta.get("resolution") or 2000.0)
@@ -592,7 +603,7 @@ def _lyman_break(feature_result, cand, readings, y, fwhm_ln):
 
 
 def _readings(i, use, snr_arr, snr, y, sy, x, strength, group, cat, comp, x_comp, s_lo, s_hi,
-              window):
+              window, main_kind):
     """Single-line readings of feature `i` (`_reading_candidate`) against the strong
     hydrogenic and companion lines."""
     nc = len(comp)
@@ -603,8 +614,15 @@ def _readings(i, use, snr_arr, snr, y, sy, x, strength, group, cat, comp, x_comp
     top = {}
     for c, name in zip(comp, ion):
         top[name] = max(top.get(name, 0.0), c["strength"])
-    st = np.concatenate([strength, [c["strength"] / top[name] if top[name] > 0 else 0.0
-                                    for c, name in zip(comp, ion)]])
+    h_st = np.asarray(strength, dtype=float)
+    if main_kind == "emission":
+        # Lyβ and higher seen in emission are weak: converted to Balmer lines and Lyα in
+        # Case B, and beyond z ~ 2 absorbed by the Lyα forest; they neither strike a Lyα
+        # reading out nor are read themselves
+        high_lyman = (np.asarray(cat["n_lower"]) == 1) & (np.asarray(cat["n_upper"]) > 2)
+        h_st = np.where(high_lyman, 0.0, h_st)
+    st = np.concatenate([h_st, [c["strength"] / top[name] if top[name] > 0 else 0.0
+                                for c, name in zip(comp, ion)]])
     gr = np.concatenate([np.asarray(group, dtype=str), [f"companion|{name}" for name in ion]])
     # read as the strong ones only: strong in their group, and (companions) strong beside H
     readable = (st >= READING_STRENGTH) & np.concatenate(

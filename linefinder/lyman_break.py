@@ -27,7 +27,7 @@ lies redward of [O II] and outside the windows.
 
 import numpy as np
 
-__all__ = ["LYA_REST_VACUUM_AA", "mean_transmission", "continuum_step", "is_break", "BREAK_RATIO",
+__all__ = ["LYA_REST_VACUUM_AA", "mean_transmission", "continuum_step", "is_break", "BREAK_RATIO", "WINDOW_LN",
            "BREAK_SIGMA", "CONTINUUM_SNR"]
 
 # Lyα 1s-2p, vacuum, fine-structure weighted (NIST ASD, Kramida et al.; 1215.67 Å)

@@ -128,3 +128,14 @@ def test_a_balmer_break_beside_a_line_is_not_a_lyman_break(rng):
     res = identify(spec)
     assert res.status == "none" and res.lyman_break is None
     assert not any(str(x) for x in res.features["label"])
+
+
+def test_missing_lyman_beta_does_not_strike_a_lyman_alpha_reading(rng):
+    # a bright lone line at the Lyα position of z = 5; Lyβ would fall inside the window, but in
+    # emission it is weak (Case B turns it into Hα and Lyα; Osterbrock & Ferland 2006) and
+    # the forest absorbs it: its absence must not rule Lyα out
+    spec, c = _lya_spectrum(rng, z=5.0, step=1.0, amp=80.0)
+    res = identify(spec)
+    assert res.status == "none"
+    assert "Lyα" in [r["label"] for r in res.single_line_readings]
+    assert "Lyβ" not in [r["label"] for r in res.single_line_readings]
