@@ -122,6 +122,12 @@ class _UniformSpline:
                 frac = diag / np.maximum(full_diag, 1e-300 * typical)
                 lack = np.clip(1.0 - frac / 0.5, 0.0, 1.0) ** 2
                 lack[full_diag <= 0] = 1.0
+            for p in steps or ():
+                # at a step the jump is the Heaviside term's: the spline stays straight
+                # there, instead of trading its own bend against the jump where the line on
+                # the step leaves no data
+                ip = int(self.i[min(max(int(p), 0), len(self.i) - 1)])
+                lack[max(ip - 1, 0):ip + 5] = 1.0
             worst = np.maximum(np.maximum(lack[:-2], lack[1:-1]), lack[2:])
             lam = typical * (1e-9 + worst)
             k = np.arange(nc - 2)
