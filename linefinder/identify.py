@@ -31,7 +31,7 @@ from .companions import companion_lines
 from .contaminants import sky_mask
 from .doppler import C_KMS
 from .matching import CASE_B_HBETA, assign
-from .lyman_break import WINDOW_LN, continuum_step, is_break, mean_transmission
+from .lyman_break import GAP_FWHM, WINDOW_LN, continuum_step, is_break, mean_transmission
 from .medium import air_to_vacuum
 from .redshift import _within, classify, refine, search_shift, solution_probability
 from .single_line import READING_STRENGTH, single_line_readings
@@ -597,8 +597,13 @@ def _lyman_break(feature_result, cand, readings, y, fwhm_ln):
     if not is_break(step):
         return None
     zz = lya[0]["z"]
+    gap = GAP_FWHM * (float(fwhm_ln[cand]) or 1.0 / R)
     return {"z": zz, "ratio": step["ratio"], "ratio_err": step["ratio_err"],
-            "continuum_snr": step["red_snr"],
+            "continuum_snr": step["red_snr"], "blue_mean": step["blue_mean"],
+            "red_mean": step["red_mean"],
+            # the windows as ratios to the line's position: blue (lo, hi), red (lo, hi)
+            "windows": [[float(np.exp(-gap - WINDOW_LN)), float(np.exp(-gap))],
+                        [float(np.exp(gap)), float(np.exp(gap + WINDOW_LN))]],
             "expected_transmission": float(mean_transmission(zz)), "feature": int(cand)}
 
 

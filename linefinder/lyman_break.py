@@ -27,8 +27,8 @@ lies redward of [O II] and outside the windows.
 
 import numpy as np
 
-__all__ = ["LYA_REST_VACUUM_AA", "mean_transmission", "continuum_step", "is_break", "BREAK_RATIO", "WINDOW_LN",
-           "BREAK_SIGMA", "CONTINUUM_SNR"]
+__all__ = ["LYA_REST_VACUUM_AA", "mean_transmission", "continuum_step", "is_break",
+           "BREAK_RATIO", "BREAK_SIGMA", "CONTINUUM_SNR", "WINDOW_LN", "GAP_FWHM"]
 
 # Lyα 1s-2p, vacuum, fine-structure weighted (NIST ASD, Kramida et al.; 1215.67 Å)
 LYA_REST_VACUUM_AA = 1215.67

@@ -84,8 +84,9 @@ def lyman_break_text(b):
 
 def _zoom(axz, result, sel, unit, title, max_lines=8):
     """Velocity stack of one identified series: each line's neighbourhood, continuum
-    normalised and scaled to its own peak (emission up, absorption down), offset, against
-    velocity from its position at the solution."""
+    subtracted and scaled to its own peak (emission up, absorption down), offset, against
+    velocity from its position at the solution.  (Subtracted, not divided: a line on a
+    continuum step, Lyα at a Lyman break, keeps its shape.)"""
     fr, f = result.feature_result, result.features
     sp = fr.spectrum
     x, y, good = sp.axis.value, sp.flux.value, ~sp.mask
@@ -94,7 +95,7 @@ def _zoom(axz, result, sel, unit, title, max_lines=8):
     fwhm_kms = [abs(float((f["fwhm"][i] / f["center"][i]).to_value(u.one))) * C_KMS for i in sel]
     span = max(300.0, 5 * float(np.nanmax(fwhm_kms))) if fwhm_kms else 300.0
     with np.errstate(invalid="ignore", divide="ignore"):
-        norm = np.where(good, y / fr.continuum, np.nan)
+        resid = np.where(good, y - fr.continuum, np.nan)
     for k, i in enumerate(sel):
         c = f["center"][i].to_value(unit, equivalencies=u.spectral())
         # the line's predicted position: observed centre less its residual
@@ -102,16 +103,16 @@ def _zoom(axz, result, sel, unit, title, max_lines=8):
         v = (x / c0 - 1) * C_KMS if unit.is_equivalent(u.m) else (c0 / x - 1) * C_KMS
         m = np.abs(v) < span
         core = np.abs(v) < max(fwhm_kms[k], 1e-6)
-        peak = np.nanmax(np.abs(norm[core] - 1)) if np.any(core & np.isfinite(norm)) else 1.0
+        peak = np.nanmax(np.abs(resid[core])) if np.any(core & np.isfinite(resid)) else 1.0
         peak = peak if np.isfinite(peak) and peak > 0 else 1.0
-        axz.plot(v[m], (norm[m] - 1) / peak * 0.8 + k, lw=0.7, color="k")
+        axz.plot(v[m], resid[m] / peak * 0.8 + k, lw=0.7, color="k")
         axz.axhline(k, color="tab:orange", lw=0.5)
         axz.annotate(str(f["label"][i]), (span * 0.97, k + 0.1), fontsize=6.5, ha="right",
                      color="tab:blue")
     axz.axvline(0, color="tab:blue", lw=0.6, alpha=0.6)
     axz.set_xlim(-span, span)
     axz.set_xlabel("velocity from the solution [km/s]", fontsize=7)
-    axz.set_ylabel("flux / continuum − 1\n(scaled to each peak)", fontsize=7)
+    axz.set_ylabel("flux − continuum\n(scaled to each peak)", fontsize=7)
     axz.set_title(f"{title}: velocity stack", fontsize=8)
     axz.tick_params(labelsize=7)
 
@@ -199,6 +200,14 @@ def _plot(result, path_png, path_svg):
         if len(spikes):
             ax.plot(x[spikes], y[spikes], "x", color="tab:red", ms=6,
                     label="masked spike (cosmic ray)")
+        brk = result.lyman_break
+        if brk and brk.get("windows") and brk["feature"] < len(f):
+            # the continuum levels compared either side of the Lyα named by its break
+            c = f["center"][brk["feature"]].to_value(unit, equivalencies=u.spectral())
+            for (a, b), level, lab in zip(brk["windows"], (brk["blue_mean"], brk["red_mean"]),
+                                          ("Lyman break: mean flux blueward / redward", None)):
+                ax.plot([c * a, c * b], [level, level], color="tab:cyan", lw=3, alpha=0.9,
+                        label=lab, solid_capstyle="butt")
         top = np.nanmax(np.where(good, y + sig, np.nan)) if good.any() else 1.0
         bottom = np.nanmin(np.where(good, y - sig, np.nan)) if good.any() else 0.0
         ax.set_ylim(bottom - 0.05 * (top - bottom), top + 0.08 * (top - bottom))

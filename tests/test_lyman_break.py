@@ -110,8 +110,12 @@ def test_lyman_break_in_json_and_text(rng, tmp_path, capsys):
     out = json.loads(capsys.readouterr().out)
     assert out["status"] == "tentative" and out["lines"] == ["Lyα"]
     assert out["lyman_break"]["ratio"] < 0.5
-    assert main(["identify", str(path), "--medium", "vacuum"]) == 0
+    assert main(["identify", str(path), "--medium", "vacuum", "-o", str(tmp_path / "rep")]) == 0
     assert "continuum break" in capsys.readouterr().out
+    summ = json.loads((tmp_path / "rep" / "summary.json").read_text())
+    blue, red = summ["lyman_break"]["windows"]
+    assert blue[1] < 1 < red[0] and summ["lyman_break"]["blue_mean"] < summ["lyman_break"]["red_mean"]
+    assert "continuum break" in (tmp_path / "rep" / "report.html").read_text()
 
 
 def test_a_balmer_break_beside_a_line_is_not_a_lyman_break(rng):
