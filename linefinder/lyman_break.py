@@ -19,10 +19,11 @@ a line to the mean flux in a window redward of it, pixels of the line itself
 and of other features left out, with its 1-sigma error from the flux
 uncertainties.  Windows are 3 % in wavelength on each side (some 35 Å in
 the rest frame of Lyα), wide enough to hold tens of resolution elements at
-R >= 1000 and near enough to the line that a break elsewhere is diluted: the
-Balmer jump 2.2 % blueward of [O II] 3727, a drop of up to about 2, leaves a
-ratio near 0.87 in the blue window, above `BREAK_RATIO`; the 4000 Å break
-lies redward of [O II] and outside the windows.
+R >= 1000; the ratio over windows half as wide is measured too, and
+`is_break` wants both low, so that a break a little way off is not taken for
+one at the line: the Balmer jump 2.2 % blueward of [O II] 3727 lowers the
+outer part of the blue window only, and the 4000 Å break lies redward of
+[O II].
 """
 
 import numpy as np
@@ -36,10 +37,11 @@ WINDOW_LN = 0.03          # each side of the line
 GAP_FWHM = 3.0            # the line's own pixels: +/- this many FWHM
 # a break is claimed when the blue/red flux ratio is below BREAK_RATIO by BREAK_SIGMA
 # standard errors and the red continuum itself is detected at CONTINUUM_SNR: a power-law
-# continuum (f_lambda ~ lambda^-2 ... lambda^+1) changes by under 7 % across the windows
-# (rules of this tool)
-BREAK_RATIO = 0.85
-BREAK_SIGMA = 4.0
+# continuum (f_lambda ~ lambda^-2 ... lambda^+1) changes the ratio by under 4 % across the
+# windows, the blue side higher for the blue continua of star-forming galaxies (rules of
+# this tool)
+BREAK_RATIO = 0.92
+BREAK_SIGMA = 5.0
 CONTINUUM_SNR = 8.0
 
 
@@ -51,15 +53,18 @@ def mean_transmission(z_abs):
     return np.where(z_abs > 0, np.exp(-tau), 1.0)
 
 
-def continuum_step(ln_lam, flux, sigma, center_ln, fwhm_ln, *, exclude=None):
+def continuum_step(ln_lam, flux, sigma, center_ln, fwhm_ln, *, exclude=None, window=WINDOW_LN,
+                   inner=True):
     """Blue/red mean-flux ratio about a line at `center_ln` (ln wavelength).
 
     `ln_lam`, `flux`, `sigma`: the spectrum's pixels (ln of wavelength, any
     flux unit, 1-sigma errors); `fwhm_ln`: the line's FWHM in ln(lambda);
     `exclude`: a boolean array of pixels to leave out (other features).
     Returns a dict with ``ratio``, ``ratio_err``, ``red_mean``, ``red_snr``,
-    ``blue_mean`` and ``n_blue``/``n_red`` (pixels used), or None when either
-    window holds fewer than 5 usable pixels.
+    ``blue_mean`` and ``n_blue``/``n_red`` (pixels used), and with `inner` the
+    same ratio over windows half as wide (``inner_ratio``, ``inner_ratio_err``,
+    NaN where they are too short), or None when either window holds fewer than
+    5 usable pixels.
     """
     ln_lam = np.asarray(ln_lam, dtype=float)
     flux = np.asarray(flux, dtype=float)
@@ -69,8 +74,8 @@ def continuum_step(ln_lam, flux, sigma, center_ln, fwhm_ln, *, exclude=None):
         good &= ~np.asarray(exclude, bool)
     gap = GAP_FWHM * max(float(fwhm_ln), 0.0)
     d = ln_lam - center_ln
-    blue = good & (d < -gap) & (d >= -gap - WINDOW_LN)
-    red = good & (d > gap) & (d <= gap + WINDOW_LN)
+    blue = good & (d < -gap) & (d >= -gap - window)
+    red = good & (d > gap) & (d <= gap + window)
     if blue.sum() < 5 or red.sum() < 5:
         return None
 
@@ -80,17 +85,27 @@ def continuum_step(ln_lam, flux, sigma, center_ln, fwhm_ln, *, exclude=None):
 
     mb, eb = mean(blue)
     mr, er = mean(red)
-    if mr <= 0:
-        return {"ratio": np.nan, "ratio_err": np.nan, "red_mean": mr, "red_snr": mr / er,
-                "blue_mean": mb, "n_blue": int(blue.sum()), "n_red": int(red.sum())}
-    ratio = mb / mr
-    err = np.hypot(eb, ratio * er) / mr
-    return {"ratio": float(ratio), "ratio_err": float(err), "red_mean": mr, "red_snr": mr / er,
-            "blue_mean": mb, "n_blue": int(blue.sum()), "n_red": int(red.sum())}
+    out = {"ratio": np.nan, "ratio_err": np.nan, "red_mean": mr, "red_snr": mr / er,
+           "blue_mean": mb, "n_blue": int(blue.sum()), "n_red": int(red.sum()),
+           "inner_ratio": np.nan, "inner_ratio_err": np.nan}
+    if mr > 0:
+        out["ratio"] = float(mb / mr)
+        out["ratio_err"] = float(np.hypot(eb, mb / mr * er) / mr)
+    if inner:
+        half = continuum_step(ln_lam, flux, sigma, center_ln, fwhm_ln, exclude=exclude,
+                              window=window / 2, inner=False)
+        if half is not None:
+            out["inner_ratio"], out["inner_ratio_err"] = half["ratio"], half["ratio_err"]
+    return out
 
 
 def is_break(step):
-    """True when a `continuum_step` result shows a significant drop blueward."""
+    """True when a `continuum_step` result shows a significant drop blueward that starts
+    at the line: the ratio below `BREAK_RATIO` by `BREAK_SIGMA` standard errors, and the
+    half-width windows next to the line below it too (by 2 standard errors), so that a
+    break a little way off (a Balmer jump beside [O II]) is not taken for it."""
     if not step or not np.isfinite(step["ratio"]) or step["red_snr"] < CONTINUUM_SNR:
         return False
-    return step["ratio"] + BREAK_SIGMA * step["ratio_err"] < BREAK_RATIO
+    inner = step.get("inner_ratio", np.nan), step.get("inner_ratio_err", np.nan)
+    return bool(step["ratio"] + BREAK_SIGMA * step["ratio_err"] < BREAK_RATIO
+                and np.isfinite(inner[0]) and inner[0] + 2.0 * inner[1] < BREAK_RATIO)
