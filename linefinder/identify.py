@@ -394,8 +394,14 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
             # with whatever else (companions, Lyβ) the catalogue puts in the window there
             # (emission features only: a residual dip on the line's flank is not it)
             em = use & (kinds_arr == "emission")
+            # the break names Lyα itself: He II 1215 (n = 4 -> 2), 0.4 Å away, is left out
+            lya_x = x[np.asarray(cat["label"]) == "Lyα"]
+            twin = np.zeros(len(xs), bool)
+            if len(lya_x):
+                twin[:len(x)] = (np.asarray(cat["label"]) != "Lyα") & \
+                    (np.min(np.abs(x[:, None] - lya_x[None, :]), axis=1) < 2e-3)
             sol = refine(np.log1p(lyman["z"]), y[em], sy[em], w[em], xs, st_s,
-                         np.ones(len(xs), bool), window=window, fwhm_ln=1.0 / R,
+                         ~twin, window=window, fwhm_ln=1.0 / R,
                          half_width=fwhm_feat[em] / 2, **search_kw)
             sol = _reindex(sol, np.flatnonzero(em))
             if any(i == lyman["feature"] and str(cat["label"][j]) == "Lyα"
