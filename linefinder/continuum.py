@@ -177,16 +177,16 @@ def find_steps(y, sigma, good, *, width_px=25, gap_px=5, min_sigma=8.0, min_frac
     new level).
 
     Medians of `width_px` pixels either side of each pixel (`gap_px` left out
-    between them; medians of 5-pixel block medians, every fifth of a window) are
-    compared: a step differs by `min_sigma` standard errors of the medians and by
-    `min_fraction` of the higher level, and each level is straight: over it and
-    the two windows further out the medians change by less than `flat` times
-    the step from one window to the next and bend by less than that, so that a
-    gently sloping continuum passes and the flanks of a broad line or of a
-    series-limit trough are not taken for a step.  Windows of 1, 2, 4 ...
-    (`scales`) times `width_px` are tried, so that a faint continuum's step is found in the wider ones.  The
-    step is then put where a two-level model fits best (least absolute
-    deviations).
+    between them; medians of block medians, blocks a fifth of a window long)
+    are compared: a step differs by `min_sigma` standard errors of the medians
+    and by `min_fraction` of the higher level, and each level is straight: over
+    it and the two windows further out the medians change by less than `flat`
+    times the step from one window to the next and bend by less than that, so
+    that a gently sloping continuum passes and the flanks of a broad line or of
+    a series-limit trough are not taken for a step.  Windows of 1, 2, 4 ...
+    (`scales`) times `width_px` are tried, so that a faint continuum's step is
+    found in the wider ones.  The step is then put where a two-level model fits
+    best (least absolute deviations).
     """
     n = len(y)
     ok_px = good & np.isfinite(y)
@@ -208,8 +208,8 @@ def find_steps(y, sigma, good, *, width_px=25, gap_px=5, min_sigma=8.0, min_frac
     nb = n // b
     blocks = np.median(v[:nb * b].reshape(nb, b), axis=1)
     # standard error of a median (of medians) of W Gaussian pixels, in sigma / sqrt(W):
-    # sqrt(pi / 2) for a plain median; about 1.5 for a median of medians of 5-pixel blocks
-    # (1.46 by simulation of white noise)
+    # sqrt(pi / 2) for a plain median; about 1.5 for a median of medians (1.46 by simulation
+    # of white noise, blocks of 5 pixels, 20 blocks)
     spread = 1.2533 if b == 1 else 1.5
     for level in range(scales):
         W = 5 * b * 2 ** level

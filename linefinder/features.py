@@ -20,8 +20,8 @@ For each contiguous segment of a prepared spectrum:
 """
 
 import bisect
-from functools import partial
 from dataclasses import dataclass, field
+from functools import partial
 
 import numpy as np
 from astropy.table import QTable
@@ -566,8 +566,7 @@ def _snap_steps(steps, feats, reach, y):
             out.append(int(np.ceil(max(near, key=lambda f: f["amp0"])["px"])))
             continue
         lo, hi = max(int(p - 4 * reach), 0), min(int(p + 4 * reach), len(y))
-        rising = np.nanmedian(y[p:hi]) > np.nanmedian(y[lo:p]) if p - lo > 4 and hi - p > 4 \
-            else False
+        rising = p - lo > 4 and hi - p > 4 and np.nanmedian(y[p:hi]) > np.nanmedian(y[lo:p])
         crowd = sum(1 for f in feats if f["amp0"] < 0 and p < f["px"] <= p + 8 * reach)
         if rising and crowd < 2:
             out.append(int(p))

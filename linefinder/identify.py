@@ -30,8 +30,8 @@ from .catalogue import build_catalogue
 from .companions import companion_lines
 from .contaminants import sky_mask
 from .doppler import C_KMS
-from .matching import CASE_B_HBETA, assign
 from .lyman_break import GAP_FWHM, WINDOW_LN, continuum_step, is_break, mean_transmission
+from .matching import CASE_B_HBETA, assign
 from .medium import air_to_vacuum
 from .redshift import _within, classify, refine, search_shift, solution_probability
 from .single_line import READING_STRENGTH, single_line_readings
@@ -584,7 +584,7 @@ def _lyman_break(feature_result, cand, readings, y, fwhm_ln):
     ln_axis = _vacuum_ln_axis(spec)
     # (features much broader than the windows are left in: the trace of a continuum that
     # did not follow the step, not lines)
-    others = np.ones(len(y), bool) & (fwhm_ln < WINDOW_LN / 3)
+    others = fwhm_ln < WINDOW_LN / 3
     others[cand] = False
     # other features' pixels left out (+/- 2 FWHM; unknown widths: 3 resolution elements)
     R = float(feature_result.meta.get("resolution") or 2000.0)

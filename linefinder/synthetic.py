@@ -7,9 +7,9 @@ window, with non-hydrogenic lines, night-sky residuals and cosmic-ray spikes
 injected.  Emission sources are seen through the Lyα forest: their
 continuum blueward of Lyα is depressed by the mean transmission of
 `lyman_break.mean_transmission` (the Lyα forest only; the higher Lyman
-series and the Lyman limit are left out).  Line positions come from `build_catalogue` (vacuum); the other
-lines use rest wavelengths recalled from the NIST ASD (vacuum Å, to the
-digits shown).
+series and the Lyman limit are left out).  Line positions come from
+`build_catalogue` (vacuum); the other lines use rest wavelengths recalled
+from the NIST ASD (vacuum Å, to the digits shown).
 
 `make_spectrum` returns a `SpectrumData` and a truth dict.  Each line's
 ``snr`` in the truth is its matched-filter S/N, A/sigma * sqrt(sqrt(pi) s)
