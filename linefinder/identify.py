@@ -382,11 +382,12 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
             # the break is evidence of its own: the strongest few emission features above
             # the detection limit are tried, not only the one clear enough to be read alone
             em_ok = np.flatnonzero(use & (kinds_arr == "emission") & (np.nan_to_num(snr_arr) >= snr))
+            pixels = _sorted_pixels(feature_result) if len(em_ok) else None
             for c in em_ok[np.argsort(-snr_arr[em_ok])][:3]:
                 rd = readings if c == cand else _readings(
                     c, use, snr_arr, snr, y, sy, x, strength, group, cat, comp, x_comp, s_lo,
                     s_hi, window, main_kind)
-                lyman = _lyman_break(feature_result, int(c), rd, y, fwhm_feat)
+                lyman = _lyman_break(pixels, R, int(c), rd, y, fwhm_feat)
                 if lyman is not None:
                     break
         if lyman is not None:
@@ -573,37 +574,40 @@ def _reading_candidate(use, kinds_arr, main_kind, snr_arr, snr):
     return int(np.flatnonzero(ok)[np.argmax(snr_arr[ok])])
 
 
-def _lyman_break(feature_result, cand, readings, y, fwhm_ln):
+def _sorted_pixels(feature_result):
+    """The spectrum's pixels by ln(vacuum wavelength): (ln lambda, flux with masked pixels
+    NaN, noise), for `_lyman_break`."""
+    spec = feature_result.spectrum
+    ln_axis = _vacuum_ln_axis(spec)
+    order = np.argsort(ln_axis)
+    flux = np.where(np.asarray(spec.mask, bool), np.nan, np.asarray(spec.flux.value, float))
+    return ln_axis[order], flux[order], np.asarray(feature_result.noise, dtype=float)[order]
+
+
+def _lyman_break(pixels, R, cand, readings, y, fwhm_ln):
     """The continuum step at feature `cand` when it may be Lyα (a single-line reading) and
     the continuum drops blueward of it (`lyman_break.is_break`); a dict for the result's
-    ``lyman_break`` (with the reading's ``z``), else None."""
+    ``lyman_break`` (with the reading's ``z``), else None.  `pixels`: `_sorted_pixels`."""
     lya = [r for r in readings if r["label"] == "Lyα" and r["species"] == "H I"]
     if cand is None or not lya:
         return None
-    spec = feature_result.spectrum
-    ln_axis = _vacuum_ln_axis(spec)
+    ax, flux, sigma = pixels
     # (features much broader than the windows are left in: the trace of a continuum that
     # did not follow the step, not lines)
     others = fwhm_ln < WINDOW_LN / 3
     others[cand] = False
     # other features' pixels left out (+/- 2 FWHM; unknown widths: 3 resolution elements)
-    R = float(feature_result.meta.get("resolution") or 2000.0)
     half = 2.0 * np.where(fwhm_ln[others] > 0, fwhm_ln[others], 1.5 / R)
     yo = y[others]
-    order = np.argsort(ln_axis)
-    ax = ln_axis[order]
     exclude = np.zeros(len(ax), bool)
     for a, b in zip(np.searchsorted(ax, yo - half), np.searchsorted(ax, yo + half)):
         exclude[a:b] = True
-    bad = np.asarray(spec.mask, bool)[order] if spec.mask is not None else np.zeros(len(ax), bool)
-    flux = np.asarray(spec.flux.value, dtype=float)[order]
-    sigma = np.asarray(feature_result.noise, dtype=float)[order]
-    step = continuum_step(ax, np.where(bad, np.nan, flux), sigma, float(y[cand]),
-                          float(fwhm_ln[cand]) or 1.0 / R, exclude=exclude)
+    width = float(fwhm_ln[cand]) or 1.0 / R
+    step = continuum_step(ax, flux, sigma, float(y[cand]), width, exclude=exclude)
     if not is_break(step):
         return None
     zz = lya[0]["z"]
-    gap = GAP_FWHM * (float(fwhm_ln[cand]) or 1.0 / R)
+    gap = GAP_FWHM * width
     return {"z": zz, "ratio": step["ratio"], "ratio_err": step["ratio_err"],
             "continuum_snr": step["red_snr"], "blue_mean": step["blue_mean"],
             "red_mean": step["red_mean"],
