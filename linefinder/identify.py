@@ -322,8 +322,11 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     use = ~((sky & mask_sky) | (telluric & mask_telluric))
     snr_kind = np.nan_to_num(np.asarray(feats["snr"], dtype=float)) if len(feats) else np.zeros(0)
     kinds_arr = np.asarray(feats["kind"]).astype(str) if len(feats) else np.zeros(0, str)
-    main_kind = "absorption" if snr_kind[use & (kinds_arr == "absorption")].sum() > \
-        snr_kind[use & (kinds_arr == "emission")].sum() else "emission"
+    # the kind with more evidence, sum of S/N squared (the chi-squared the features carry):
+    # a clear emission line outweighs a few dips at the detection limit
+    power = snr_kind ** 2
+    main_kind = "absorption" if power[use & (kinds_arr == "absorption")].sum() > \
+        power[use & (kinds_arr == "emission")].sum() else "emission"
     # a slightly wider range and R on coarse grids, so that spectra of one survey share it
     q = 0.05
     lmin = float(np.exp(np.floor(np.log(lam_rest_min) / q) * q))
