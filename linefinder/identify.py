@@ -322,11 +322,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     use = ~((sky & mask_sky) | (telluric & mask_telluric))
     snr_kind = np.nan_to_num(np.asarray(feats["snr"], dtype=float)) if len(feats) else np.zeros(0)
     kinds_arr = np.asarray(feats["kind"]).astype(str) if len(feats) else np.zeros(0, str)
-    # the kind with more evidence, sum of S/N squared (the chi-squared the features carry):
-    # a clear emission line outweighs a few dips at the detection limit
-    power = snr_kind ** 2
-    main_kind = "absorption" if power[use & (kinds_arr == "absorption")].sum() > \
-        power[use & (kinds_arr == "emission")].sum() else "emission"
+    main_kind = _main_kind(snr_kind, kinds_arr, use)
     # a slightly wider range and R on coarse grids, so that spectra of one survey share it
     q = 0.05
     lmin = float(np.exp(np.floor(np.log(lam_rest_min) / q) * q))
@@ -566,6 +562,16 @@ def _defer_to_primary(x, strength, secondary, fwhm_ln, factor=0.1):
     idx = np.flatnonzero(secondary)
     out[idx[dist < fwhm_ln]] *= factor
     return out
+
+
+def _main_kind(snr, kinds, use):
+    """"emission" or "absorption": the kind with more evidence among the features in use,
+    the sum of S/N squared (the chi-squared they carry), so that a clear emission line
+    outweighs a few dips at the detection limit."""
+    power = np.asarray(snr, dtype=float) ** 2
+    kinds = np.asarray(kinds).astype(str)
+    return "absorption" if power[use & (kinds == "absorption")].sum() > \
+        power[use & (kinds == "emission")].sum() else "emission"
 
 
 def _reading_candidate(use, kinds_arr, main_kind, snr_arr, snr):

@@ -159,3 +159,34 @@ def test_one_line_gets_readings_not_a_redshift(rng):
     spec2, _ = make_spectrum(rng, z=0.2, snr=40, resolution=2000, contaminants=False)
     res2 = identify(spec2)
     assert res2.status == "secure" and res2.single_line_readings == []
+
+
+def test_main_kind_weighs_features_by_their_evidence():
+    from linefinder.identify import _main_kind
+
+    # one clear emission line (S/N 8) against five dips at the detection limit (S/N 3):
+    # 64 against 45 in S/N squared; counted by plain S/N sums the dips would win (15 > 8)
+    kinds = np.array(["emission"] + ["absorption"] * 5)
+    snr = np.array([8.0, 3.0, 3.0, 3.0, 3.0, 3.0])
+    use = np.ones(6, bool)
+    assert _main_kind(snr, kinds, use) == "emission"
+    assert _main_kind(np.array([4.0, 3.0, 3.0, 3.0, 3.0, 3.0]), kinds, use) == "absorption"
+    # masked features (sky) do not vote
+    use[0] = False
+    assert _main_kind(snr, kinds, use) == "absorption"
+
+
+def test_lone_lya_with_a_break_beside_weak_dips_is_named():
+    # a spectrum of the benchmark suite (invented data, seed 1): Lyα alone at z = 5.66
+    # (R 27700), the continuum blueward of it at ~5 % of the red side, and a handful of
+    # continuum dips at the detection limit; the break names the line
+    from linefinder.synthetic import random_parameters
+
+    gen = np.random.default_rng([1, 21, 0])
+    p = random_parameters(gen)
+    spec, truth = make_spectrum(gen, **p, max_pixels=150_000)
+    res = identify(spec, mask_sky=True)
+    assert res.lyman_break is not None
+    assert res.status == "tentative"
+    assert abs(res.z - truth["z"]) < 5e-4 * (1 + truth["z"])
+    assert "Lyα" in list(res.features["label"])
