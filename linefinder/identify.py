@@ -378,9 +378,12 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                              x_comp, s_lo, s_hi, window, main_kind) if cand is not None else []
         if feature_result is not None and main_kind == "emission" and reg == "optical" \
                 and not is_freq_axis:
-            # the break is evidence of its own: the strongest few emission features above
-            # the detection limit are tried, not only the one clear enough to be read alone
-            em_ok = np.flatnonzero(use & (kinds_arr == "emission") & (np.nan_to_num(snr_arr) >= snr))
+            # the break is evidence of its own: the strongest few emission features are
+            # tried, not only the one clear enough to be read alone, down to a fitted S/N of
+            # 0.8 times the detection limit (a free width and baseline take 20-35 % of the
+            # matched-filter S/N the features were detected by)
+            em_ok = np.flatnonzero(use & (kinds_arr == "emission")
+                                   & (np.nan_to_num(snr_arr) >= 0.8 * snr))
             pixels = _sorted_pixels(feature_result) if len(em_ok) else None
             for c in em_ok[np.argsort(-snr_arr[em_ok])][:3]:
                 rd = readings if c == cand else _readings(
