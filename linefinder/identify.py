@@ -320,9 +320,9 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     # features on masked sky lines or telluric bands are no evidence for the redshift, nor
     # for the kind of spectrum (sky residuals come with either sign)
     use = ~((sky & mask_sky) | (telluric & mask_telluric))
-    snr_kind = np.nan_to_num(np.asarray(feats["snr"], dtype=float)) if len(feats) else np.zeros(0)
+    snr_arr = np.asarray(feats["snr"], dtype=float) if len(feats) else np.zeros(0)
     kinds_arr = np.asarray(feats["kind"]).astype(str) if len(feats) else np.zeros(0, str)
-    main_kind = _main_kind(snr_kind, kinds_arr, use)
+    main_kind = _main_kind(snr_arr, kinds_arr, use)
     # a slightly wider range and R on coarse grids, so that spectra of one survey share it
     q = 0.05
     lmin = float(np.exp(np.floor(np.log(lam_rest_min) / q) * q))
@@ -347,7 +347,6 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     search_kw = dict(group=_more_codes(group_codes, nc), multiplet=_more_codes(multiplet, nc),
                      line_weight=np.concatenate([line_weight, np.full(nc, COMPANION_WEIGHT)]),
                      intensity_strength=np.concatenate([strength, np.zeros(nc)]))
-    snr_arr = np.asarray(feats["snr"], dtype=float) if len(feats) else np.zeros(0)
     w = np.log1p(np.clip(np.nan_to_num(snr_arr, nan=5.0), 0, 1e4))
     fwhm_feat = _width_ln(feats)
     s_lo, s_hi = np.log1p(zmin), np.log1p(zmax)
@@ -571,7 +570,7 @@ def _main_kind(snr, kinds, use):
     """"emission" or "absorption": the kind with more evidence among the features in use,
     the sum of S/N squared (the chi-squared they carry), so that a clear emission line
     outweighs a few dips at the detection limit."""
-    power = np.asarray(snr, dtype=float) ** 2
+    power = np.nan_to_num(np.asarray(snr, dtype=float)) ** 2
     kinds = np.asarray(kinds).astype(str)
     return "absorption" if power[use & (kinds == "absorption")].sum() > \
         power[use & (kinds == "emission")].sum() else "emission"
