@@ -45,7 +45,7 @@ def test_bad_shift():
                                          ("relativistic", u.doppler_relativistic)])
 @pytest.mark.parametrize("factor", [0.7, 0.999, 1.0004, 1.3, 2.5])
 def test_velocities_agree_with_astropy_equivalencies(conv, equiv, factor):
-    # reference library: astropy's Doppler equivalencies (optical v = c (lambda/lambda0 - 1),
+    # source: astropy's Doppler equivalencies, a reference library (optical v = c (lambda/lambda0 - 1),
     # radio v = c (1 - nu/nu0), relativistic the exact special-relativistic form)
     rest = 6564.61 * u.AA
     v_ref = (rest * factor).to(u.km / u.s, equivalencies=equiv(rest)).value

@@ -18,7 +18,8 @@ def _two_gauss(x, a1, m1, s1, a2, m2, s2, c0, c1):
 
 
 def test_batched_fits_agree_with_scipy_curve_fit(rng):
-    # reference library: scipy.optimize.curve_fit (MINPACK) on the same data, group by group
+    # source: scipy.optimize.curve_fit (MINPACK), a reference library, on the same data,
+    # group by group
     problems, refs = [], []
     for _ in range(12):
         x = np.linspace(0, 60, int(rng.integers(50, 140)))

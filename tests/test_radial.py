@@ -22,7 +22,8 @@ def _quad(n, l, k, lk):
 
 
 def test_closed_forms():
-    # <2p|r|1s> = 128 sqrt(6)/243 and <3d|r|2p> = 27 * 2^... : Bethe & Salpeter 1957 table 13
+    # <2p|r|1s> = 128 sqrt(6)/243 a0 (source: Bethe & Salpeter 1957, the radial integrals of
+    # hydrogen in closed form; recalled from memory)
     X, _ = dipole_radial_integrals(np.array([2]), np.array([1]))
     assert X[0, 1] == pytest.approx(128 * np.sqrt(6) / 243, rel=1e-14)
 
