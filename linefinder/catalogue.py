@@ -172,6 +172,11 @@ def _merge_blends(arrays, wavelength_nm, resolution, fine):
         else:
             out[key] = val[strongest]
     count = np.bincount(group, minlength=ngroups)
+    # the highest upper level in each row: above n_upper when lines of several levels merged
+    # (a series near its limit), not only fine-structure components of one
+    n_max = np.zeros(ngroups, dtype=int)
+    np.maximum.at(n_max, group, np.asarray(arrays["n_upper"], dtype=int))
+    out["n_upper_max"] = n_max
     return out, count, group
 
 
@@ -216,6 +221,9 @@ def build_catalogue(species, lower, upper, *, fine=False, medium="vacuum", a_val
     Returns
     -------
     `~astropy.table.QTable`
+        One row per line (or per blend, with `resolution`): ``blend`` counts the components
+        merged into a row and ``n_upper_max`` is the highest upper level among them (above
+        ``n_upper``, the strongest component's, where lines of several levels merged).
     """
     names = [species] if isinstance(species, str) or not np.iterable(species) else list(species)
     lower = parse_range(lower, "lower n")
@@ -297,7 +305,8 @@ def _species_columns(sp, arrays, *, fine, factor, formula, air_conditions, wavel
             "a_ul": arrays["a_ul"], "f_lu": arrays["f_lu"], "g_lower": arrays["g_lower"].astype(int),
             "g_upper": arrays["g_upper"].astype(int), "line_strength": arrays["line_strength"],
             "rel_intensity": rel, "rest_wavelength_vacuum": K.C / arrays["frequency"] * 1e9,
-            "blend": count}
+            "blend": count,
+            "n_upper_max": arrays.get("n_upper_max", arrays["n_upper"]).astype(int)}
     if fine:
         for which in ("lower", "upper"):
             cols[f"l_{which}"] = arrays[f"l_{which}"].astype(int)
@@ -374,6 +383,7 @@ def _assemble(c, *, fine, a_values):
         out["rel_intensity"] = c["rel_intensity"]
     out["rest_wavelength_vacuum"] = q(c["rest_wavelength_vacuum"], u.nm)
     out["blend"] = c["blend"]
+    out["n_upper_max"] = c["n_upper_max"]
     if fine:
         out["transition"] = c["transition"]
     return QTable(list(out.values()), names=list(out), copy=False)

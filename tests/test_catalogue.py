@@ -140,3 +140,18 @@ def test_rydberg_atom_warns_at_low_n():
         build_catalogue("C", 2, 3)
     t = build_catalogue("C", 109, 110)
     assert t["label"][0] == "C109α"
+
+
+def test_merged_rows_record_their_highest_level():
+    # at R = 755 the Lyman lines from n ~ 12 up lie closer than a resolution element
+    # (Rydberg formula: 1/lambda = R_H (1 - 1/n^2), spacing 2 R_H^-1 / n^3 against lambda/R)
+    # and merge into one row: its n_upper_max is above its n_upper; Ly10 stays alone
+    cat = build_catalogue("H", 1, (2, 40), fine=True, resolution=755.0,
+                          wavelength_range=(900 * u.AA, 925 * u.AA))
+    ly10 = cat[cat["n_upper"] == 10]
+    assert len(ly10) == 1 and ly10["n_upper_max"][0] == 10
+    merged = cat[cat["blend"] > 2]
+    assert len(merged) == 1 and merged["n_upper_max"][0] == 40 > merged["n_upper"][0]
+    # without merging every row is one line
+    plain = build_catalogue("H", 1, (2, 40), wavelength_range=(900 * u.AA, 925 * u.AA))
+    assert np.all(plain["n_upper_max"] == plain["n_upper"])
