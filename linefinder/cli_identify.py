@@ -41,6 +41,8 @@ def _print_summary(res, s, source):
         name = r["label"] or (f"[user] {r['user_line']}" if r["user_line"] else
                               (f"[companion] {r['companion']}" if r["companion"] else "unidentified"))
         res_txt = "" if r["residual_kms"] is None else f"{r['residual_kms']:+7.1f} km/s"
+        if r["label"] and "at_z" in r["flags"].split(","):
+            res_txt = f"{'at z':>12}"
         print(f"  {r['center']:12.6g} {s['unit']:<8} {r['kind']:<10} S/N {r['snr']:6.1f}  "
               f"{r['species'] or '':<6} {name:<14} {res_txt}  {r['flags']}")
 

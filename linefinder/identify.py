@@ -23,7 +23,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from astropy import units as u
-from astropy.table import QTable
+from astropy.table import QTable, vstack
+from scipy.special import erf
 
 from . import constants as K
 from .catalogue import build_catalogue
@@ -32,7 +33,8 @@ from .contaminants import sky_mask
 from .doppler import C_KMS
 from .lyman_break import GAP_FWHM, WINDOW_LN, continuum_step, is_break, mean_transmission
 from .matching import CASE_B_HBETA, assign
-from .medium import air_to_vacuum
+from .forced import choose_lines, measure_predicted
+from .medium import air_to_vacuum, vacuum_to_air
 from .redshift import _within, classify, refine, search_shift, solution_probability
 from .single_line import READING_STRENGTH, single_line_readings
 
@@ -41,6 +43,11 @@ __all__ = ["identify", "Identification", "default_species", "read_line_list"]
 # evidence of a companion match relative to a hydrogen line's: full weight gave more named lines
 # at equal purity than half on the synthetic suite (benchmarks/); a rule of this tool
 COMPANION_WEIGHT = 1.0
+# lines the solution predicts and the blind search missed are claimed when measured at their
+# predicted position at this S/N (one-sided false-alarm probability 3e-5 per line tried): a
+# rule of this tool, stricter than the 3 sigma often quoted for a line at a known redshift,
+# since many lines are tried in each spectrum
+AT_Z_SNR = 4.0
 XRAY_IONS = ["C VI", "N VII", "O VIII", "Ne X", "Mg XII", "Si XIV", "S XVI", "Ar XVIII", "Ca XX",
              "Fe XXVI", "Ni XXVIII"]
 
@@ -469,6 +476,12 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                 _primary_in_blends(out, rest, res2, y[rest], sy[rest], fwhm_feat[rest],
                                    more[0].s, x, line_weight < 1)
                 _fill(out, rest, res2, cat, y[rest], more[0].s, None, system=2)
+    if feature_result is not None and best_s is not None and len(cat) and len(feats) and \
+            (status == "secure" or z is not None):
+        out = _append_at_z(out, res.best, cat, x, group, line_weight >= 1, best_s,
+                           sols[0].s_err if sols else 0.0, feature_result, y, fwhm_feat,
+                           main_kind, window, R, medium, mask_sky and not is_freq_axis,
+                           1.0 if z is not None else solution_probability(sols))
     result = Identification(features=out, status=status, solutions=sols, lines=cat,
                             feature_result=feature_result, systems=systems,
                             single_line_readings=readings, lyman_break=lyman)
@@ -587,12 +600,13 @@ def _reading_candidate(use, kinds_arr, main_kind, snr_arr, snr):
 
 def _sorted_pixels(feature_result):
     """The spectrum's pixels by ln(vacuum wavelength): (ln lambda, flux with masked pixels
-    NaN, noise), for `_lyman_break`."""
+    NaN, noise, continuum), for `_lyman_break` and `_append_at_z`."""
     spec = feature_result.spectrum
     ln_axis = _vacuum_ln_axis(spec)
     order = np.argsort(ln_axis)
     flux = np.where(np.asarray(spec.mask, bool), np.nan, np.asarray(spec.flux.value, float))
-    return ln_axis[order], flux[order], np.asarray(feature_result.noise, dtype=float)[order]
+    return (ln_axis[order], flux[order], np.asarray(feature_result.noise, dtype=float)[order],
+            np.asarray(feature_result.continuum, dtype=float)[order])
 
 
 def _lyman_break(pixels, R, cand, readings, y, fwhm_ln):
@@ -602,7 +616,7 @@ def _lyman_break(pixels, R, cand, readings, y, fwhm_ln):
     lya = [r for r in readings if r["label"] == "Lyα" and r["species"] == "H I"]
     if cand is None or not lya:
         return None
-    ax, flux, sigma = pixels
+    ax, flux, sigma = pixels[:3]
     # (features much broader than the windows are left in: the trace of a continuum that
     # did not follow the step, not lines)
     others = fwhm_ln < WINDOW_LN / 3
@@ -660,6 +674,76 @@ def _readings(i, use, snr_arr, snr, y, sy, x, strength, group, cat, comp, x_comp
     return single_line_readings(y[found], sy[found], snr_arr[found], loc, xs, st, gr, labels,
                                 spc, smin=s_lo, smax=s_hi, window=window, detection_snr=snr,
                                 readable=readable)
+
+
+def _append_at_z(out, best, cat, x, group, primary, s, s_err, feature_result, y, fwhm_ln, kind,
+                 window, R, medium, mask_sky, probability):
+    """The feature table with rows added for the lines the solution predicts where no
+    feature was found, measured there (`forced`) at S/N >= AT_Z_SNR with the sign of the
+    spectrum's kind; flagged ``at_z``.  Their centre is the prediction (residual 0), its
+    error that of the redshift; their score the solution's probability times the
+    two-sided Gaussian confidence of the measured amplitude."""
+    ncat = len(cat)
+    matched = {int(j): i for i, j in enumerate(best) if 0 <= j < ncat and out["system"][i] == 1}
+    if not matched:
+        return out
+    blend = np.array(["blend" in str(f) for f in out["flags"]], dtype=bool)
+    n_up = np.asarray(cat["n_upper"], dtype=int)
+    # a row merging lines of several levels (a series past its resolution limit) is no
+    # line to measure on its own; it still stands in the fit beside the others
+    single = np.asarray(cat["n_upper_max"], dtype=int) == n_up
+    cand, cand_w, width, blob = choose_lines(x, np.asarray(group, dtype=str), n_up,
+                                             primary & single, matched, y, fwhm_ln, blend, s,
+                                             window, 1.0 / R)
+    if not len(cand):
+        return out
+    ax, flux, sigma, cont = _sorted_pixels(feature_result)
+    lines = np.flatnonzero(primary & np.isfinite(width))
+    amp, err = measure_predicted(ax, flux - cont, sigma, x[cand] + s, cand_w, x[lines] + s,
+                                 width[lines], y, fwhm_ln, blob)
+    sign = 1.0 if kind == "emission" else -1.0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        snr = sign * amp / err
+    ok = np.isfinite(snr) & (snr >= AT_Z_SNR)
+    if not ok.any():
+        return out
+    cand, cand_w, amp, snr = cand[ok], cand_w[ok], amp[ok], snr[ok]
+    unit = out["center"].unit
+    lam = np.exp(x[cand] + s) * u.m
+    if unit.is_equivalent(u.m) and medium == "air":
+        lam = vacuum_to_air(lam)
+    centre = lam.to(unit, equivalencies=u.spectral())
+    fwhm = np.abs(centre) * cand_w
+    if mask_sky:
+        on_sky = sky_mask(centre, np.abs(centre) * s_err, fwhm, medium=medium, bands=False)
+        cand, cand_w, amp, snr, centre, fwhm = (v[~on_sky] for v in
+                                                (cand, cand_w, amp, snr, centre, fwhm))
+        if not len(cand):
+            return out
+    new = QTable()
+    new["center"] = centre
+    new["center_err"] = np.abs(centre) * s_err
+    new["fwhm"] = fwhm
+    new["flux"] = amp * fwhm.value * np.sqrt(np.pi / (4 * np.log(2))) * out["flux"].unit
+    new["snr"] = snr
+    new["kind"] = np.full(len(cand), kind)
+    new["flags"] = np.full(len(cand), "at_z")
+    new = _feature_table(new, np.zeros(len(cand), bool), np.zeros(len(cand), bool), False, False)
+    lam_rest = cat["wavelength_vacuum"].to_value(u.nm)
+    for k, j in enumerate(cand):
+        for col in ("label", "species", "series", "n_lower", "n_upper"):
+            new[col][k] = cat[col][j]
+        new["rest_wavelength_vacuum"][k] = lam_rest[j] * u.nm
+        new["residual_kms"][k] = 0.0
+        new["residual"][k] = 0.0 * unit
+        new["residual_sigma"][k] = 0.0
+        new["score"][k] = float(probability * erf(snr[k] / np.sqrt(2.0)))
+        new["system"][k] = 1
+    meta = dict(out.meta)
+    both = vstack([out, new], join_type="exact", metadata_conflicts="silent")
+    both.meta = meta
+    both.meta["at_z_snr"] = AT_Z_SNR
+    return both
 
 
 def _vacuum_ln_axis(spec):

@@ -27,6 +27,11 @@ def _companion(f, i):
     return (str(f["companion"][i]) or None) if "companion" in f.colnames else None
 
 
+def _at_z(f, i):
+    """Whether row i is a line measured at the position the solution predicts."""
+    return "at_z" in str(f["flags"][i]).split(",")
+
+
 def _other_name(f, i):
     """The non-hydrogenic name of feature i: its user line or companion line, else ''."""
     return str(f["user_line"][i]) or (_companion(f, i) or "")
@@ -44,11 +49,13 @@ def summary(result, *, unit=None):
         ce = abs((f["center"][i] + f["center_err"][i]).to_value(cu, equivalencies=u.spectral()) - c) \
             if np.isfinite(f["center_err"][i].value) else None
         label = str(f["label"][i]) or None
+        at_z = _at_z(f, i)
         row = {"center": c, "center_err": ce, "kind": str(f["kind"][i]), "snr": float(f["snr"][i]),
                "label": label, "species": str(f["species"][i]) or None,
                "n_lower": int(f["n_lower"][i]) if label else None,
                "n_upper": int(f["n_upper"][i]) if label else None,
-               "residual_kms": float(f["residual_kms"][i]) if label else None,
+               # a line measured at its predicted position has no position of its own
+               "residual_kms": float(f["residual_kms"][i]) if label and not at_z else None,
                "score": float(f["score"][i]) if label else 0.0,
                "alternatives": detail.get(i, []), "flags": str(f["flags"][i]),
                "system": int(f["system"][i]), "user_line": str(f["user_line"][i]) or None,
@@ -216,7 +223,7 @@ def _plot(result, path_png, path_svg):
     for i, c in enumerate(centres):
         other = _other_name(f, i)
         color = "tab:blue" if f["label"][i] else ("tab:purple" if other else "tab:red")
-        ax.axvline(c, color=color, lw=0.6, alpha=0.4)
+        ax.axvline(c, color=color, lw=0.6, alpha=0.4, ls=":" if _at_z(f, i) else "-")
         names.append(f["label"][i] or other or ("sky" if "sky" in str(f["flags"][i]) else "?"))
         colors.append(color)
     _label_row(axl, ax, centres, names, colors)
@@ -249,8 +256,10 @@ def _plot(result, path_png, path_svg):
     from matplotlib.lines import Line2D
 
     handles, _ = ax.get_legend_handles_labels()
-    handles += [Line2D([], [], color=c, lw=1.0, label=t) for c, t in (
+    handles += [Line2D([], [], color=c, lw=1.0, label=t, ls=":" if "at_z" in t else "-")
+                for c, t in (
         ("tab:blue", "hydrogenic line"), ("tab:purple", "companion or your line"),
+        ("tab:blue", "hydrogenic line measured where z puts it (at_z)"),
         ("tab:red", "unexplained (sky: on a night-sky line)"))]
     ax.legend(handles=handles, fontsize=7, loc="upper left", bbox_to_anchor=(1.005, 1.0),
               borderaxespad=0.0)
@@ -259,6 +268,8 @@ def _plot(result, path_png, path_svg):
         if fr is not None:
             _zoom(fig.add_subplot(gs[2, k]), result, sel, unit, f"{spn} {ser}")
         axz = fig.add_subplot(gs[3, k])
+        # lines measured at their predicted position have no residual of their own
+        sel = [i for i in sel if not _at_z(f, i)]
         vel = np.array([f["residual_kms"][i] for i in sel])
         labels = [str(f["label"][i]) for i in sel]
         errs = []
@@ -323,6 +334,11 @@ def write_report(result, folder, *, force=False, source=""):
             " detection; settle it with more data).</p>")
     if summ.get("lyman_break"):
         readings += f"<p>{lyman_break_text(summ['lyman_break'])}</p>"
+    if any("at_z" in r["flags"].split(",") for r in summ["features"]):
+        readings += ("<p>Rows flagged <i>at_z</i> were not found by the blind search: they are"
+                     " lines the solution predicts, measured at their predicted position with"
+                     " the width of the identified lines beside them. Their position is the"
+                     " prediction, so they have no residual and no say in the redshift.</p>")
     html = f"""<!DOCTYPE html><html><head><meta charset="utf-8"><title>linefinder report</title>
 <style>body{{font-family:sans-serif;margin:2em}}table{{border-collapse:collapse}}
 td,th{{border:1px solid #ccc;padding:2px 6px;font-size:90%}}</style></head><body>
