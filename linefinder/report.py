@@ -50,7 +50,8 @@ def summary(result, *, unit=None):
             if np.isfinite(f["center_err"][i].value) else None
         label = str(f["label"][i]) or None
         at_z = _at_z(f, i)
-        row = {"center": c, "center_err": ce, "kind": str(f["kind"][i]), "snr": float(f["snr"][i]),
+        row = {"index": i, "center": c, "center_err": ce, "kind": str(f["kind"][i]),
+               "snr": float(f["snr"][i]),
                "label": label, "species": str(f["species"][i]) or None,
                "n_lower": int(f["n_lower"][i]) if label else None,
                "n_upper": int(f["n_upper"][i]) if label else None,
@@ -65,6 +66,10 @@ def summary(result, *, unit=None):
         if not (label or row["user_line"] or row["companion"]):
             unid.append({"center": c, "center_err": ce, "kind": row["kind"], "snr": row["snr"],
                          "flags": row["flags"]})
+    # in order along the axis (lines measured at z follow the detected features in the
+    # table); "index" is the row of the feature table, which `lyman_break` refers to
+    feats.sort(key=lambda r: r["center"])
+    unid.sort(key=lambda r: r["center"])
     best = result.solutions[0] if result.solutions else None
     return {"z": result.z, "z_err": result.z_err, "status": result.status,
             "velocity_kms": result.velocity_kms, "velocity_err_kms": result.velocity_err_kms,
@@ -300,6 +305,10 @@ def write_report(result, folder, *, force=False, source=""):
     folder.mkdir(parents=True, exist_ok=True)
     result.meta["source"] = source
     t = result.features.copy()
+    # the row of the feature table (`lyman_break` and the JSON refer to it), then in order
+    # along the axis
+    t.add_column(np.arange(len(t)), name="feature", index=0)
+    t = t[np.argsort(u.Quantity(t["center"]).value, kind="stable")] if len(t) else t
     t.meta = {k: v for k, v in result.meta.items() if k != "catalogue"}
     t.meta["medium"] = result.meta.get("medium")
     t.meta["catalogue"] = {k: v for k, v in result.meta.get("catalogue", {}).items()

@@ -160,3 +160,28 @@ def test_report_label_spread_and_spike_record():
     truth = json.loads(sample_path("emission_galaxy.fits.truth.json").read_text())
     res = find_features(read_input(sample_path("emission_galaxy.fits")))
     assert truth["cosmic_ray_pixel"] in res.meta["spike_pixels"]
+
+
+def test_lines_measured_at_z_are_marked_in_the_report(tmp_path, capsys):
+    # a spectrum of the benchmark suite (invented data, seed 2 #6): a Lyman-series absorber
+    # at z = 6.20 whose Ly13-Ly15 the search misses and the solution measures where z puts them
+    from linefinder.synthetic import make_spectrum, random_parameters
+
+    gen = np.random.default_rng([2, 6, 0])
+    spec, truth = make_spectrum(gen, **random_parameters(gen), max_pixels=150_000)
+    path = tmp_path / "absorber.csv"
+    path.write_text("wavelength [Angstrom],flux,err\n" + "\n".join(
+        f"{a:.10g},{b:.10g},{c:.10g}" for a, b, c in zip(spec.axis.to_value(u.AA),
+                                                         spec.flux.value, spec.uncertainty.value)))
+    out = tmp_path / "report"
+    assert main(["identify", str(path), "--medium", "vacuum", "--mask-sky", "--resolution",
+                 str(truth["resolution"]), "-o", str(out)]) == 0
+    text = capsys.readouterr().out
+    summary = json.loads((out / "summary.json").read_text())
+    at_z = [f for f in summary["features"] if "at_z" in f["flags"].split(",")]
+    assert {"Ly13", "Ly14", "Ly15"} <= {f["label"] for f in at_z}
+    # no position of their own: no residual, and the text says where they were measured
+    assert all(f["residual_kms"] is None and f["snr"] >= 4 for f in at_z)
+    assert all(f["label"] in summary["lines"] for f in at_z)
+    assert text.count("at z") >= len(at_z)
+    assert "at_z" in (out / "report.html").read_text()
