@@ -397,7 +397,10 @@ def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorpt
         else:
             fwhm_px = DEFAULT_FWHM_PX
         fwhm_px = max(fwhm_px, 1.0)
-        seg_rows, cont, seg_spikes = _segment(x, y, sig, good, dx, fwhm_px, snr, kinds, knot_px, lo)
+        # which way is blue along the pixels: wavelength rising, or frequency/energy falling
+        blue_first = spec.is_wavelength == bool(x[-1] > x[0])
+        seg_rows, cont, seg_spikes = _segment(x, y, sig, good, dx, fwhm_px, snr, kinds, knot_px, lo,
+                                              blue_first=blue_first)
         spike_pixels.extend(seg_spikes)
         if not R:
             narrow = [f["fwhm"] / dx[f["pixel"] - lo] for f in seg_rows
@@ -551,14 +554,15 @@ def _spikes(y, cont, sig, good, fwhm_px):
     return out
 
 
-def _snap_steps(steps, feats, reach, y):
+def _snap_steps(steps, feats, reach, y, *, blue_first=True):
     """The continuum steps to fit: a step with an emission line on it is put at the line's
     centre (Lyα at a Lyman break: the forest absorbs from the line's own wavelength
     blueward; the placement from the levels alone is pulled to the line's foot).  A step
-    with no line on it is kept only when the continuum is lower before it (blueward on a
-    wavelength axis) and no absorption lines crowd the higher side: the merged members
-    below an absorption series limit make a level change that must stay lines, with the
-    resolved members just beyond it."""
+    with no line on it is kept only when the continuum is lower on its blue side and no
+    absorption lines crowd the red side: the merged members below an absorption series
+    limit make a level change that must stay lines, with the resolved members just beyond
+    it.  `blue_first`: blue is at the low pixel indices (a rising wavelength axis, or a
+    falling frequency or energy axis)."""
     out = []
     for p in steps:
         near = [f for f in feats if f["amp0"] > 0 and abs(f["px"] - p) <= reach]
@@ -566,14 +570,18 @@ def _snap_steps(steps, feats, reach, y):
             out.append(int(np.ceil(max(near, key=lambda f: f["amp0"])["px"])))
             continue
         lo, hi = max(int(p - 4 * reach), 0), min(int(p + 4 * reach), len(y))
-        rising = p - lo > 4 and hi - p > 4 and np.nanmedian(y[p:hi]) > np.nanmedian(y[lo:p])
-        crowd = sum(1 for f in feats if f["amp0"] < 0 and p < f["px"] <= p + 8 * reach)
+        rising = p - lo > 4 and hi - p > 4 and \
+            (np.nanmedian(y[p:hi]) > np.nanmedian(y[lo:p])) == blue_first
+        if blue_first:
+            crowd = sum(1 for f in feats if f["amp0"] < 0 and p < f["px"] <= p + 8 * reach)
+        else:
+            crowd = sum(1 for f in feats if f["amp0"] < 0 and p - 8 * reach <= f["px"] < p)
         if rising and crowd < 2:
             out.append(int(p))
     return np.asarray(out, int)
 
 
-def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
+def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset, *, blue_first=True):
     n = len(y)
     w = np.where(good & np.isfinite(sig) & (sig > 0), 1.0 / np.where(sig > 0, sig, 1) ** 2, 0.0)
     base_knots = knot_px or max(40, 12 * fwhm_px)
@@ -598,7 +606,7 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset):
         if not feats:
             break
         if len(steps):
-            steps = _snap_steps(steps, feats, max(25, 10 * fwhm_px), y)
+            steps = _snap_steps(steps, feats, max(25, 10 * fwhm_px), y, blue_first=blue_first)
             fit_continuum = partial(_fit_continuum, steps=steps)
         # widths from the matched-filter scale (within a factor ~1.4): no profile fits yet
         broad = [f for f in feats if f["amp0"] < 0 and f["fwhm_px"] > 6 * fwhm_px]

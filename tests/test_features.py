@@ -209,3 +209,23 @@ def test_resolved_members_beside_the_merged_series_limit_are_found(index, first,
     cat = build_catalogue("H", (2, 2), (first, last), z=truth["z"])
     for c in cat["wavelength_vacuum"].to_value(u.AA):
         assert np.min(np.abs(found - c)) < 0.5 * c / truth["resolution"], c
+
+
+def test_continuum_steps_are_read_the_same_on_either_axis_direction():
+    # a continuum stepping up redward (a Lyman break, seen on a wavelength axis) and the
+    # same spectrum on a frequency axis (pixels in the opposite order): the step is kept on
+    # both; the mirrored step (lower on the red side) is kept on neither
+    from linefinder.features import _snap_steps
+
+    n, p, reach = 400, 200, 25
+    y = np.where(np.arange(n) < p, 1.0, 2.0)
+    assert list(_snap_steps([p], [], reach, y)) == [p]
+    assert list(_snap_steps([n - p], [], reach, y[::-1], blue_first=False)) == [n - p]
+    assert len(_snap_steps([n - p], [], reach, y[::-1])) == 0
+    assert len(_snap_steps([p], [], reach, y, blue_first=False)) == 0
+    # absorption lines crowding the red side (merged members below a series limit) keep the
+    # level change as lines, whichever way the axis runs
+    crowd = [{"amp0": -1.0, "px": p + 10}, {"amp0": -1.0, "px": p + 30}]
+    assert len(_snap_steps([p], crowd, reach, y)) == 0
+    mirrored = [{"amp0": -1.0, "px": n - f["px"]} for f in crowd]
+    assert len(_snap_steps([n - p], mirrored, reach, y[::-1], blue_first=False)) == 0
