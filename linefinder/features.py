@@ -290,6 +290,8 @@ def _fit_batch(batch, groups, windows, x, r, sig, good, dx, model, own, passes):
         a, b = windows[i]
         for f, res in zip(g, fits):
             f["fit"] = res
+            if res["ok"] and np.isfinite(res["center"]):
+                f["last_ok"] = res
             f["group"] = len(g)
         _mark_blends(g)
         new = _group_model(g, x, a, b)
@@ -581,6 +583,25 @@ def _snap_steps(steps, feats, reach, y, *, blue_first=True):
     return np.asarray(out, int)
 
 
+def _usable(fit, x, dx, n, fwhm_px, threshold):
+    """(fitted S/N, pixel, FWHM in pixels, distance from the edge) of a fit worth
+    reporting, else None: not a single-pixel spike, centre inside the segment, S/N at
+    least half the detection threshold."""
+    if fit is None or not np.isfinite(fit["center"]):
+        return None
+    snr_fit = abs(fit["flux"]) / fit["flux_err"] if fit["flux_err"] > 0 else 0.0
+    ipx = int(np.clip(np.searchsorted(x, fit["center"]), 0, n - 1))
+    fpx = fit["fwhm"] / max(dx[ipx], 1e-300)     # in local pixels: log grids vary
+    if (fpx < 0.8) or (fwhm_px >= 1.5 and fpx < 0.45 * fwhm_px):
+        return None   # a single-pixel spike (cosmic ray, hot pixel)
+    from_edge = min(ipx, n - 1 - ipx)
+    if from_edge < 0.5 * fpx or fit["center"] < x[0] or fit["center"] > x[-1]:
+        return None
+    if snr_fit < 0.5 * threshold:
+        return None
+    return snr_fit, ipx, fpx, from_edge
+
+
 def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset, *, blue_first=True):
     n = len(y)
     w = np.where(good & np.isfinite(sig) & (sig > 0), 1.0 / np.where(sig > 0, sig, 1) ** 2, 0.0)
@@ -687,19 +708,19 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset, *,
         feats = feats + frozen
     rows = []
     for g in feats:
-        fit = g["fit"]
-        if fit is None or not np.isfinite(fit["center"]):
+        # the last fit, else (when it is unusable) the last converged one: a neighbour added
+        # late, beside a series-limit trough, can drive a group's fit off, and the line is
+        # then reported with its earlier fit (flagged poor_fit) rather than lost
+        tries = [(g["fit"], False)]
+        if g.get("last_ok") is not None and g.get("last_ok") is not g["fit"]:
+            tries.append((g["last_ok"], True))
+        for fit, refit_failed in tries:
+            kept = _usable(fit, x, dx, n, fwhm_px, threshold)
+            if kept:
+                break
+        if not kept:
             continue
-        snr_fit = abs(fit["flux"]) / fit["flux_err"] if fit["flux_err"] > 0 else 0.0
-        ipx = int(np.clip(np.searchsorted(x, fit["center"]), 0, n - 1))
-        fpx = fit["fwhm"] / max(dx[ipx], 1e-300)     # in local pixels: log grids vary
-        if (fpx < 0.8) or (fwhm_px >= 1.5 and fpx < 0.45 * fwhm_px):
-            continue   # a single-pixel spike (cosmic ray, hot pixel)
-        from_edge = min(ipx, n - 1 - ipx)
-        if from_edge < 0.5 * fpx or fit["center"] < x[0] or fit["center"] > x[-1]:
-            continue
-        if snr_fit < 0.5 * threshold:
-            continue
+        snr_fit, ipx, fpx, from_edge = kept
         flags = []
         if g.get("blend"):
             flags.append("blend")
@@ -708,7 +729,8 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset, *,
         a, b = max(0, int(ipx - fpx)), min(n, int(ipx + fpx) + 1)
         if not good[a:b].all():
             flags.append("masked")
-        if (not fit["ok"]) or fit["chi2_red"] > 3 or not np.isfinite(fit["center_err"]):
+        if (not fit["ok"]) or fit["chi2_red"] > 3 or not np.isfinite(fit["center_err"]) \
+                or refit_failed:
             flags.append("poor_fit")
         if fit.get("at_bound"):
             flags.append("unresolved")

@@ -229,3 +229,4 @@ def test_continuum_steps_are_read_the_same_on_either_axis_direction():
     assert len(_snap_steps([p], crowd, reach, y)) == 0
     mirrored = [{"amp0": -1.0, "px": n - f["px"]} for f in crowd]
     assert len(_snap_steps([n - p], mirrored, reach, y[::-1], blue_first=False)) == 0
+
