@@ -14,15 +14,16 @@ def _axis():
 
 
 def test_gaussian_template_has_its_fwhm():
-    # half maximum at +/- FWHM/2 (definition of the FWHM)
+    # half maximum at +/- FWHM/2 (source: the definition of the FWHM)
     g = gaussian_templates(np.array([0.0, W / 2, -W / 2]), [0.0], [W])[:, 0]
     assert g == pytest.approx([1.0, 0.5, 0.5], rel=1e-12)
 
 
 def test_fixed_profile_fit_is_unbiased_and_its_errors_are_honest(rng):
     # two overlapping lines (1 FWHM apart), constant noise: over many noise draws the mean
-    # amplitude is the true one and the scatter is the error the fit reports (least squares
-    # with known noise; Gauss-Markov)
+    # amplitude is the true one and the scatter is the error the fit reports (source: the
+    # Gauss-Markov theorem; covariance (A^T W A)^-1 of general linear least squares, Press et
+    # al., Numerical Recipes, 3rd ed., sec. 15.4)
     ax = _axis()
     truth = np.array([3.0, -1.5])
     model = gaussian_templates(ax, [0.0, W], [W, W]) @ truth
