@@ -10,7 +10,10 @@ line list, and looks for a second system among the rest.  In optical/IR
 emission spectra the strong nebular lines ([O III], [N II], C IV ...,
 `companions`) are evidence for the redshift beside the hydrogen lines, and
 the features they explain are reported in a column of their own
-(``companion``), never as hydrogenic identifications.
+(``companion``), never as hydrogenic identifications.  Once the redshift is
+secure (or fixed), the lines it predicts where no feature was found are
+measured at their predicted positions (`forced`) and added as rows flagged
+``at_z`` when they reach S/N 4.
 
 Every position error used in the matching is the quadrature sum of the
 measured centre error, a calibration term (default 2e-5 relative, 6 km/s)
