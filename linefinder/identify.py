@@ -26,8 +26,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from astropy import units as u
-from astropy.table import QTable, vstack
-from scipy.special import erf
+from astropy.table import QTable
 
 from . import constants as K
 from .catalogue import build_catalogue
@@ -36,8 +35,8 @@ from .contaminants import sky_mask
 from .doppler import C_KMS
 from .lyman_break import GAP_FWHM, WINDOW_LN, continuum_step, is_break, mean_transmission
 from .matching import CASE_B_HBETA, assign
-from .forced import choose_lines, measure_predicted
-from .medium import air_to_vacuum, vacuum_to_air
+from .feature_table import append_at_z, fill, new_table, peaks_as_features
+from .medium import air_to_vacuum
 from .redshift import _within, classify, refine, search_shift, solution_probability
 from .single_line import READING_STRENGTH, single_line_readings
 
@@ -46,11 +45,6 @@ __all__ = ["identify", "Identification", "default_species", "read_line_list"]
 # evidence of a companion match relative to a hydrogen line's: full weight gave more named lines
 # at equal purity than half on the synthetic suite (benchmarks/); a rule of this tool
 COMPANION_WEIGHT = 1.0
-# lines the solution predicts and the blind search missed are claimed when measured at their
-# predicted position at this S/N (one-sided false-alarm probability 3e-5 per line tried): a
-# rule of this tool, stricter than the 3 sigma often quoted for a line at a known redshift,
-# since many lines are tried in each spectrum
-AT_Z_SNR = 4.0
 XRAY_IONS = ["C VI", "N VII", "O VIII", "Ne X", "Mg XII", "Si XIV", "S XVI", "Ar XVIII", "Ca XX",
              "Fe XXVI", "Ni XXVIII"]
 
@@ -282,7 +276,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
 
     feature_result = None
     if is_peak_list(data):
-        feats = _peaks_as_features(data)
+        feats = peaks_as_features(data)
         medium = data.meta.get("medium", "vacuum")
         R = resolution or data.meta.get("resolution")
     else:
@@ -423,7 +417,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
             else:
                 lyman = None
     best_s = sols[0].s if sols else (np.log1p(z) if z is not None else None)
-    out = _feature_table(feats, sky, telluric, mask_sky, mask_telluric)
+    out = new_table(feats, sky, telluric, mask_sky, mask_telluric)
     # companions (their typical strengths) and user lines (strength 1: the user expects them)
     # compete in the same assignment, so a weak hydrogenic line cannot take a feature that
     # one of them explains better
@@ -447,7 +441,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
         res.score = res.score * (1.0 if z is not None else solution_probability(sols))
         _primary_in_blends(out, idx, res, y[idx], sy[idx], fwhm_feat[idx], best_s, x,
                            line_weight < 1)
-        _fill(out, idx, res, cat, y[idx], best_s, other)
+        fill(out, idx, res, cat, y[idx], best_s, other)
     elif extra_lines and len(feats):
         # no hydrogenic solution: the user's lines are still matched at the rest frame (or z)
         idx = np.arange(len(feats))
@@ -455,7 +449,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                      group_all[len(x) + nc:], s_user)
         res.best = np.where(res.best >= 0, res.best + len(x) + nc, -1)
         res.alt_index[:] = -1
-        _fill(out, idx, res, cat, y, s_user, other)
+        fill(out, idx, res, cat, y, s_user, other)
     systems = []
     if find_systems and z is None and status == "secure":
         rest = np.flatnonzero(use & (np.asarray(out["label"]) == "")
@@ -478,11 +472,11 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                               group, more[0].s, snr=snr_arr[rest])
                 _primary_in_blends(out, rest, res2, y[rest], sy[rest], fwhm_feat[rest],
                                    more[0].s, x, line_weight < 1)
-                _fill(out, rest, res2, cat, y[rest], more[0].s, None, system=2)
+                fill(out, rest, res2, cat, y[rest], more[0].s, None, system=2)
     if feature_result is not None and best_s is not None and len(cat) and len(feats) and \
             (status == "secure" or z is not None):
-        out = _append_at_z(out, res.best, cat, x, group, line_weight >= 1, best_s,
-                           sols[0].s_err if sols else 0.0, feature_result, y, fwhm_feat,
+        out = append_at_z(out, res.best, cat, x, group, line_weight >= 1, best_s,
+                          sols[0].s_err if sols else 0.0, _sorted_pixels(feature_result), y, fwhm_feat,
                            main_kind, window, R, medium, mask_sky and not is_freq_axis,
                            1.0 if z is not None else solution_probability(sols))
     result = Identification(features=out, status=status, solutions=sols, lines=cat,
@@ -603,7 +597,7 @@ def _reading_candidate(use, kinds_arr, main_kind, snr_arr, snr):
 
 def _sorted_pixels(feature_result):
     """The spectrum's pixels by ln(vacuum wavelength): (ln lambda, flux with masked pixels
-    NaN, noise, continuum), for `_lyman_break` and `_append_at_z`."""
+    NaN, noise, continuum), for `_lyman_break` and `feature_table.append_at_z`."""
     spec = feature_result.spectrum
     ln_axis = _vacuum_ln_axis(spec)
     order = np.argsort(ln_axis)
@@ -679,76 +673,6 @@ def _readings(i, use, snr_arr, snr, y, sy, x, strength, group, cat, comp, x_comp
                                 readable=readable)
 
 
-def _append_at_z(out, best, cat, x, group, primary, s, s_err, feature_result, y, fwhm_ln, kind,
-                 window, R, medium, mask_sky, probability):
-    """The feature table with rows added for the lines the solution predicts where no
-    feature was found, measured there (`forced`) at S/N >= AT_Z_SNR with the sign of the
-    spectrum's kind; flagged ``at_z``.  Their centre is the prediction (residual 0), its
-    error that of the redshift; their score the solution's probability times the
-    two-sided Gaussian confidence of the measured amplitude."""
-    ncat = len(cat)
-    matched = {int(j): i for i, j in enumerate(best) if 0 <= j < ncat and out["system"][i] == 1}
-    if not matched:
-        return out
-    blend = np.array(["blend" in str(f) for f in out["flags"]], dtype=bool)
-    n_up = np.asarray(cat["n_upper"], dtype=int)
-    # a row merging lines of several levels (a series past its resolution limit) is no
-    # line to measure on its own; it still stands in the fit beside the others
-    single = np.asarray(cat["n_upper_max"], dtype=int) == n_up
-    cand, cand_w, width, blob = choose_lines(x, np.asarray(group, dtype=str), n_up,
-                                             primary & single, matched, y, fwhm_ln, blend, s,
-                                             window, 1.0 / R)
-    if not len(cand):
-        return out
-    ax, flux, sigma, cont = _sorted_pixels(feature_result)
-    lines = np.flatnonzero(primary & np.isfinite(width))
-    amp, err = measure_predicted(ax, flux - cont, sigma, x[cand] + s, cand_w, x[lines] + s,
-                                 width[lines], y, fwhm_ln, blob)
-    sign = 1.0 if kind == "emission" else -1.0
-    with np.errstate(divide="ignore", invalid="ignore"):
-        snr = sign * amp / err
-    ok = np.isfinite(snr) & (snr >= AT_Z_SNR)
-    if not ok.any():
-        return out
-    cand, cand_w, amp, snr = cand[ok], cand_w[ok], amp[ok], snr[ok]
-    unit = out["center"].unit
-    lam = np.exp(x[cand] + s) * u.m
-    if unit.is_equivalent(u.m) and medium == "air":
-        lam = vacuum_to_air(lam)
-    centre = lam.to(unit, equivalencies=u.spectral())
-    fwhm = np.abs(centre) * cand_w
-    if mask_sky:
-        on_sky = sky_mask(centre, np.abs(centre) * s_err, fwhm, medium=medium, bands=False)
-        cand, cand_w, amp, snr, centre, fwhm = (v[~on_sky] for v in
-                                                (cand, cand_w, amp, snr, centre, fwhm))
-        if not len(cand):
-            return out
-    new = QTable()
-    new["center"] = centre
-    new["center_err"] = np.abs(centre) * s_err
-    new["fwhm"] = fwhm
-    new["flux"] = amp * fwhm.value * np.sqrt(np.pi / (4 * np.log(2))) * out["flux"].unit
-    new["snr"] = snr
-    new["kind"] = np.full(len(cand), kind)
-    new["flags"] = np.full(len(cand), "at_z")
-    new = _feature_table(new, np.zeros(len(cand), bool), np.zeros(len(cand), bool), False, False)
-    lam_rest = cat["wavelength_vacuum"].to_value(u.nm)
-    for k, j in enumerate(cand):
-        for col in ("label", "species", "series", "n_lower", "n_upper"):
-            new[col][k] = cat[col][j]
-        new["rest_wavelength_vacuum"][k] = lam_rest[j] * u.nm
-        new["residual_kms"][k] = 0.0
-        new["residual"][k] = 0.0 * unit
-        new["residual_sigma"][k] = 0.0
-        new["score"][k] = float(probability * erf(snr[k] / np.sqrt(2.0)))
-        new["system"][k] = 1
-    meta = dict(out.meta)
-    both = vstack([out, new], join_type="exact", metadata_conflicts="silent")
-    both.meta = meta
-    both.meta["at_z_snr"] = AT_Z_SNR
-    return both
-
-
 def _vacuum_ln_axis(spec):
     """ln of the vacuum wavelength (m) of every pixel of a prepared spectrum."""
     lam = spec.axis.to_value(u.m, equivalencies=u.spectral())
@@ -771,94 +695,3 @@ def _observed_window(feature_result, y):
 def _reindex(sol, idx):
     sol.matches = [(int(idx[i]), j, r) for i, j, r in sol.matches]
     return sol
-
-
-def _peaks_as_features(peaks):
-    t = QTable()
-    c = u.Quantity(peaks["center"])
-    t["center"] = c
-    if "center_err" in peaks.colnames:
-        t["center_err"] = u.Quantity(peaks["center_err"], c.unit)
-    else:
-        t["center_err"] = np.full(len(c), np.nan) * c.unit
-    if "fwhm" in peaks.colnames:
-        t["fwhm"] = u.Quantity(peaks["fwhm"], c.unit)
-    else:
-        t["fwhm"] = np.full(len(c), np.nan) * c.unit
-    t["flux"] = np.asarray(peaks["flux"], float) if "flux" in peaks.colnames else \
-        (np.asarray(peaks["amplitude"], float) if "amplitude" in peaks.colnames else np.ones(len(c)))
-    t["snr"] = np.asarray(peaks["snr"], float) if "snr" in peaks.colnames else np.full(len(c), 10.0)
-    t["kind"] = np.asarray(peaks["kind"]).astype(str) if "kind" in peaks.colnames else \
-        np.full(len(c), "emission")
-    t["flags"] = np.full(len(c), "")
-    return t
-
-
-def _feature_table(feats, sky, telluric, mask_sky, mask_telluric):
-    out = QTable()
-    for col in ("center", "center_err", "fwhm", "flux", "snr", "kind"):
-        out[col] = feats[col]
-    flags = [str(f) for f in feats["flags"]] if len(feats) else []
-    flags = [",".join([p for p in (f, "sky" if s else "", "telluric" if t else "") if p])
-             for f, s, t in zip(flags, sky, telluric)]
-    # wide enough for the flags identify adds later ("blend" on a primary in a blend)
-    out["flags"] = np.array(flags, dtype="U96")
-    n = len(feats)
-    out["label"] = np.full(n, "", dtype=object).astype("U32")
-    out["species"] = np.full(n, "", dtype="U16")
-    out["series"] = np.full(n, "", dtype="U16")
-    out["n_lower"] = np.zeros(n, dtype=int)
-    out["n_upper"] = np.zeros(n, dtype=int)
-    out["rest_wavelength_vacuum"] = np.full(n, np.nan) * u.nm
-    out["residual_kms"] = np.full(n, np.nan)
-    out["residual"] = np.full(n, np.nan) * feats["center"].unit if n else [] * u.nm
-    out["residual_sigma"] = np.full(n, np.nan)
-    out["score"] = np.zeros(n)
-    out["system"] = np.zeros(n, dtype=int)
-    out["alternatives"] = np.full(n, "", dtype="U200")
-    out["user_line"] = np.full(n, "", dtype="U40")
-    out["companion"] = np.full(n, "", dtype="U40")
-    out.meta["sky_mask_applied"] = bool(mask_sky)
-    out.meta["telluric_mask_applied"] = bool(mask_telluric)
-    return out
-
-
-def _fill(out, idx, res, cat, y, s, extra, system=1):
-    """Write an `Assignment` into the feature table (line indices past the catalogue are
-    those of `extra`: companions and the user's lines)."""
-    ncat = len(cat)
-    lam_cat = cat["wavelength_vacuum"].to_value(u.m) if ncat else np.zeros(0)
-    out.meta.setdefault("alternatives_detail", {})
-    for k, i in enumerate(idx):
-        j = int(res.best[k])
-        alts = [(a, p) for a, p in res.alternatives(k) if a < ncat]
-        out.meta["alternatives_detail"][int(i)] = [
-            {"label": str(cat["label"][a]), "species": str(cat["species"][a]),
-             "n_lower": int(cat["n_lower"][a]), "n_upper": int(cat["n_upper"][a]), "score": float(p)}
-            for a, p in alts]
-        if j < 0:
-            continue
-        if j >= ncat:
-            line = extra[j - ncat]
-            out["companion" if line.get("source") == "companion" else "user_line"][i] = line["name"]
-            out["score"][i] = float(res.score[k])
-            continue
-        out["label"][i] = str(cat["label"][j])
-        out["species"][i] = str(cat["species"][j])
-        out["series"][i] = str(cat["series"][j])
-        out["n_lower"][i] = int(cat["n_lower"][j])
-        out["n_upper"][i] = int(cat["n_upper"][j])
-        out["rest_wavelength_vacuum"][i] = lam_cat[j] * 1e9 * u.nm
-        dln = y[k] - s - np.log(lam_cat[j])
-        out["residual_kms"][i] = float(C_KMS * dln)
-        c = out["center"][i]
-        if c.unit.is_equivalent(u.m):
-            out["residual"][i] = float(c.value * (1 - np.exp(-dln))) * c.unit
-        else:
-            pred = (np.exp(s) * lam_cat[j] * u.m).to(c.unit, equivalencies=u.spectral())
-            out["residual"][i] = c - pred
-        out["residual_sigma"][i] = float(res.resid[k])
-        out["score"][i] = float(res.score[k])
-        out["system"][i] = system
-        out["alternatives"][i] = "; ".join(f"{cat['species'][a]} {cat['label'][a]} ({p:.2f})"
-                                           for a, p in alts)

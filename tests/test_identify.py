@@ -123,7 +123,7 @@ def test_feature_flags_keep_what_identify_adds():
     # must hold them whole, not cut to the width of the longest measured flag
     from astropy.table import QTable
 
-    from linefinder.identify import _feature_table
+    from linefinder.feature_table import new_table as _feature_table
 
     feats = QTable({"center": [5000.0, 5010.0] * u.AA, "center_err": [0.1, 0.1] * u.AA,
                     "fwhm": [2.0, 2.0] * u.AA, "flux": [1.0, 2.0], "snr": [8.0, 9.0],
