@@ -4,7 +4,8 @@ import json
 import sys
 
 from .cli_spectrum import add_spectrum_options, kinds_from_args, load_input
-from .identify import identify, read_line_list
+from .identify import identify
+from .line_lists import read_line_list
 from .report import lyman_break_text, summary, write_report
 from .tables_io import json_default
 

@@ -33,9 +33,11 @@ from .catalogue import build_catalogue
 from .companions import companion_lines
 from .contaminants import sky_mask
 from .doppler import C_KMS
-from .lyman_break import GAP_FWHM, WINDOW_LN, continuum_step, is_break, mean_transmission
-from .matching import CASE_B_HBETA, assign
+from .expected_strengths import expected_strengths, is_primary, multiplet_codes
 from .feature_table import append_at_z, fill, new_table, peaks_as_features
+from .line_lists import read_line_list
+from .lyman_break import GAP_FWHM, WINDOW_LN, continuum_step, is_break, mean_transmission
+from .matching import assign
 from .medium import air_to_vacuum
 from .redshift import _within, classify, refine, search_shift, solution_probability
 from .single_line import READING_STRENGTH, single_line_readings
@@ -96,73 +98,6 @@ def _n_ranges(reg, lam_rest_min, lam_rest_max):
     return (1, 6), (2, 40)
 
 
-def _group_keys(cat):
-    """'species|series' of every line: the groups within which strengths are relative."""
-    return np.char.add(np.char.add(np.asarray(cat["species"]).astype(str), "|"),
-                       np.asarray(cat["series"]).astype(str))
-
-
-def _multiplet_codes(cat):
-    """An integer per line naming its multiplet (species, n_lower, n_upper): the
-    fine-structure components of one line share it."""
-    if not len(cat):
-        return np.zeros(0, dtype=int)
-    key = np.char.add(np.char.add(np.asarray(cat["species"]).astype(str), "|"),
-                      np.char.add(np.asarray(cat["n_lower"]).astype(str),
-                                  np.char.add("-", np.asarray(cat["n_upper"]).astype(str))))
-    return np.unique(key, return_inverse=True)[1]
-
-
-def _thin(cat):
-    """Optically thin g_u A / lambda of every line (proportional to g_u A h nu)."""
-    return np.asarray(cat["g_upper"] * cat["a_ul"].to_value(u.s ** -1)
-                      / cat["rest_wavelength_vacuum"].to_value(u.m), dtype=float)
-
-
-def _is_primary(cat):
-    """True for lines of the primary species: H I when searched for, else the first one."""
-    species = np.asarray(cat["species"]).astype(str)
-    primary = "H I" if "H I" in set(species) else (species[0] if len(species) else "")
-    return species == primary
-
-
-def _strengths(cat, kind="emission"):
-    """Expected strength of each line within its species and series (0..1).
-
-    Emission: Case B ratios for H I and D I (extended beyond the table), the
-    catalogue's optically thin intensities otherwise.  Absorption: optical
-    depth goes as f lambda, and the lines people see are mostly saturated, so
-    the strength is (f lambda / max)^(1/3): a flat curve of growth, a rule of
-    thumb of this tool.
-    """
-    key = _group_keys(cat)
-    # across species: hydrogen dominates; helium, carbon and isotopes are usually far weaker
-    # (He/H ~ 0.1 by number; a rule of thumb for the search, not a physical claim)
-    species_weight = np.where(_is_primary(cat), 1.0, 0.25)
-    if kind == "absorption":
-        return _absorption_strengths(cat, key) * species_weight, key
-    strength = np.zeros(len(cat))
-    base = np.asarray(cat["rel_intensity"], dtype=float)
-    # optically thin g_u A h nu (absolute, so that series can be joined to the Case B table)
-    thin = _thin(cat)
-    # share of each row (a component or a blend of them) in its n -> n' multiplet
-    _, inv = np.unique(np.stack([np.unique(key, return_inverse=True)[1].ravel(),
-                                 np.asarray(cat["n_lower"]), np.asarray(cat["n_upper"])]),
-                       axis=1, return_inverse=True)
-    inv = inv.ravel()
-    share = thin / np.bincount(inv, weights=thin)[inv]
-    for k in np.unique(key):
-        sel = key == k
-        vals = base[sel].copy()
-        if k.startswith("H I|") or k.startswith("D I|"):
-            nl = np.asarray(cat["n_lower"][sel])
-            nu = np.asarray(cat["n_upper"][sel])
-            vals = _case_b_extended(nl, nu, thin[sel] / share[sel]) * share[sel]
-        m = np.nanmax(vals) if len(vals) else 1.0
-        strength[sel] = vals / m if m > 0 else 0.0
-    return strength * species_weight, key
-
-
 @functools.lru_cache(maxsize=8)
 def _catalogue(names, lower, upper, R, lam_min, lam_max, kind, series):
     """The identification catalogue and its expected strengths and groups; the last few
@@ -174,84 +109,10 @@ def _catalogue(names, lower, upper, R, lam_min, lam_max, kind, series):
     if series:
         wanted = {s.lower() for s in series}
         cat = cat[[str(s).lower() in wanted for s in cat["series"]]]
-    strength, group = _strengths(cat, kind) if len(cat) else (np.zeros(0), np.zeros(0, dtype=str))
+    strength, group = expected_strengths(cat, kind) if len(cat) else (np.zeros(0), np.zeros(0, dtype=str))
     for arr in (strength, group):
         arr.flags.writeable = False
     return cat, strength, group
-
-
-def _absorption_strengths(cat, key):
-    tau = np.asarray(cat["f_lu"], dtype=float) * cat["rest_wavelength_vacuum"].to_value(u.m)
-    strength = np.zeros(len(cat))
-    for k in np.unique(key):
-        sel = key == k
-        m = tau[sel].max()
-        strength[sel] = (tau[sel] / m) ** (1 / 3) if m > 0 else 0.0
-    return strength
-
-
-@functools.lru_cache(maxsize=64)
-def _thin_reference(n_lower, n_upper):
-    """g_u A / lambda of one H I multiplet (the same measure as `_strengths` uses)."""
-    return float(_thin(build_catalogue("H", n_lower, n_upper))[0])
-
-
-def _case_b_extended(nl, nu, thin):
-    """Case B ratios where tabulated; beyond the table each series follows the catalogue's
-    optically thin intensities, scaled to meet the last tabulated line (continuity, not a
-    recombination calculation)."""
-    out = np.array([CASE_B_HBETA.get((a, b), np.nan) for a, b in zip(nl, nu)])
-    for lower in np.unique(nl):
-        tab = [k for k in CASE_B_HBETA if k[0] == lower]
-        sel = (nl == lower) & ~np.isfinite(out)
-        if not np.any(sel):
-            continue
-        if not tab:
-            out[sel] = thin[sel] / np.max(thin[nl == lower])
-            continue
-        last = max(tab, key=lambda k: k[1])
-        out[sel] = CASE_B_HBETA[last] * thin[sel] / _thin_reference(int(lower), int(last[1]))
-    return out
-
-
-def read_line_list(path):
-    """A user's line list (CSV/ECSV): name, rest position with unit, medium (air/vacuum)."""
-    from .errors import SpectrumFormatError
-    from .header_units import parse_spectral_unit, unit_from_label
-
-    try:
-        t = QTable.read(path, format="ascii.ecsv") if str(path).endswith(".ecsv") else \
-            QTable.read(path, format="ascii.csv", comment="#")
-    except FileNotFoundError:
-        raise
-    except Exception as exc:  # astropy raises many types for malformed tables
-        raise SpectrumFormatError(f"{path}: not a readable line list ({str(exc).splitlines()[0]})") \
-            from None
-    names = {unit_from_label(c)[0].lower(): c for c in t.colnames}
-    pos_col = next((names[n] for n in ("wavelength", "wave", "rest", "frequency", "freq", "energy",
-                                       "position", "lambda") if n in names), None)
-    name_col = next((names[n] for n in ("name", "label", "line", "id") if n in names), None)
-    if pos_col is None or name_col is None:
-        raise SpectrumFormatError(f"{path}: a line list needs a name column and a rest position "
-                                  "column (wavelength, frequency or energy)")
-    col = t[pos_col]
-    unit = getattr(col, "unit", None)
-    if unit is None:
-        text = unit_from_label(pos_col)[1] or t.meta.get("unit")
-        if text is None:
-            raise SpectrumFormatError(f"{path}: the rest positions have no unit (write e.g. "
-                                      "'wavelength [Angstrom]')")
-        unit = parse_spectral_unit(text)
-    values = u.Quantity(np.asarray(col, dtype=float), unit)
-    med_col = names.get("medium")
-    medium = np.array([str(m).lower() for m in t[med_col]]) if med_col else \
-        np.full(len(t), str(t.meta.get("medium", "vacuum")).lower())
-    lam = values.to(u.m, equivalencies=u.spectral()).value
-    if values.unit.is_equivalent(u.m):
-        air = np.char.startswith(medium.astype(str), "air")
-        if np.any(air):
-            lam[air] = air_to_vacuum(lam[air] * u.m).to_value(u.m)
-    return [{"name": str(n), "rest_vacuum_m": float(v)} for n, v in zip(t[name_col], lam)]
 
 
 def _observed(features, medium):
@@ -337,8 +198,8 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     keep = strength >= 1e-3
     cat, strength, group = cat[keep], strength[keep], group[keep]
     group_codes = np.unique(group, return_inverse=True)[1] if len(group) else np.zeros(0, int)
-    line_weight = np.where(_is_primary(cat), 1.0, 0.5) if len(cat) else np.zeros(0)
-    multiplet = _multiplet_codes(cat)
+    line_weight = np.where(is_primary(cat), 1.0, 0.5) if len(cat) else np.zeros(0)
+    multiplet = multiplet_codes(cat)
     x = np.log(cat["wavelength_vacuum"].to_value(u.m)) if len(cat) else np.zeros(0)
     comp = _companions(companions and main_kind == "emission" and reg == "optical"
                        and not is_freq_axis and len(cat) > 0, lmin, lmax, r_grid, extra_lines)

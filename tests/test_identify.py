@@ -7,7 +7,8 @@ import pytest
 from astropy import units as u
 
 from linefinder.catalogue import build_catalogue
-from linefinder.identify import identify, read_line_list
+from linefinder.identify import identify
+from linefinder.line_lists import read_line_list
 from linefinder.readers import read_input
 from linefinder.samples import sample_path
 from linefinder.spectrum import SpectrumData

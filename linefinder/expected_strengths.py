@@ -1,0 +1,120 @@
+"""Expected strengths of the lines of one species and series, for scoring matches.
+
+Emission: Case B recombination ratios for H I and D I (Storey & Hummer 1995,
+extended beyond the table along the optically thin intensities); the
+catalogue's optically thin intensities for the other species.  Absorption:
+a flat curve of growth, (f lambda)^(1/3) relative to the series' strongest
+line.  Both are assumptions of the search, stated in the report, not
+measurements of the source.
+"""
+
+import functools
+
+import numpy as np
+from astropy import units as u
+
+from .catalogue import build_catalogue
+from .matching import CASE_B_HBETA
+
+__all__ = ["expected_strengths", "group_keys", "multiplet_codes", "thin_intensity", "is_primary"]
+
+
+def group_keys(cat):
+    """'species|series' of every line: the groups within which strengths are relative."""
+    return np.char.add(np.char.add(np.asarray(cat["species"]).astype(str), "|"),
+                       np.asarray(cat["series"]).astype(str))
+
+
+def multiplet_codes(cat):
+    """An integer per line naming its multiplet (species, n_lower, n_upper): the
+    fine-structure components of one line share it."""
+    if not len(cat):
+        return np.zeros(0, dtype=int)
+    key = np.char.add(np.char.add(np.asarray(cat["species"]).astype(str), "|"),
+                      np.char.add(np.asarray(cat["n_lower"]).astype(str),
+                                  np.char.add("-", np.asarray(cat["n_upper"]).astype(str))))
+    return np.unique(key, return_inverse=True)[1]
+
+
+def thin_intensity(cat):
+    """Optically thin g_u A / lambda of every line (proportional to g_u A h nu)."""
+    return np.asarray(cat["g_upper"] * cat["a_ul"].to_value(u.s ** -1)
+                      / cat["rest_wavelength_vacuum"].to_value(u.m), dtype=float)
+
+
+def is_primary(cat):
+    """True for lines of the primary species: H I when searched for, else the first one."""
+    species = np.asarray(cat["species"]).astype(str)
+    primary = "H I" if "H I" in set(species) else (species[0] if len(species) else "")
+    return species == primary
+
+
+def expected_strengths(cat, kind="emission"):
+    """Expected strength of each line within its species and series (0..1).
+
+    Emission: Case B ratios for H I and D I (extended beyond the table), the
+    catalogue's optically thin intensities otherwise.  Absorption: optical
+    depth goes as f lambda, and the lines people see are mostly saturated, so
+    the strength is (f lambda / max)^(1/3): a flat curve of growth, a rule of
+    thumb of this tool.
+    """
+    key = group_keys(cat)
+    # across species: hydrogen dominates; helium, carbon and isotopes are usually far weaker
+    # (He/H ~ 0.1 by number; a rule of thumb for the search, not a physical claim)
+    species_weight = np.where(is_primary(cat), 1.0, 0.25)
+    if kind == "absorption":
+        return _absorption_strengths(cat, key) * species_weight, key
+    strength = np.zeros(len(cat))
+    base = np.asarray(cat["rel_intensity"], dtype=float)
+    # optically thin g_u A h nu (absolute, so that series can be joined to the Case B table)
+    thin = thin_intensity(cat)
+    # share of each row (a component or a blend of them) in its n -> n' multiplet
+    _, inv = np.unique(np.stack([np.unique(key, return_inverse=True)[1].ravel(),
+                                 np.asarray(cat["n_lower"]), np.asarray(cat["n_upper"])]),
+                       axis=1, return_inverse=True)
+    inv = inv.ravel()
+    share = thin / np.bincount(inv, weights=thin)[inv]
+    for k in np.unique(key):
+        sel = key == k
+        vals = base[sel].copy()
+        if k.startswith("H I|") or k.startswith("D I|"):
+            nl = np.asarray(cat["n_lower"][sel])
+            nu = np.asarray(cat["n_upper"][sel])
+            vals = _case_b_extended(nl, nu, thin[sel] / share[sel]) * share[sel]
+        m = np.nanmax(vals) if len(vals) else 1.0
+        strength[sel] = vals / m if m > 0 else 0.0
+    return strength * species_weight, key
+
+
+def _absorption_strengths(cat, key):
+    tau = np.asarray(cat["f_lu"], dtype=float) * cat["rest_wavelength_vacuum"].to_value(u.m)
+    strength = np.zeros(len(cat))
+    for k in np.unique(key):
+        sel = key == k
+        m = tau[sel].max()
+        strength[sel] = (tau[sel] / m) ** (1 / 3) if m > 0 else 0.0
+    return strength
+
+
+@functools.lru_cache(maxsize=64)
+def _thin_reference(n_lower, n_upper):
+    """g_u A / lambda of one H I multiplet (the same measure as `expected_strengths` uses)."""
+    return float(thin_intensity(build_catalogue("H", n_lower, n_upper))[0])
+
+
+def _case_b_extended(nl, nu, thin):
+    """Case B ratios where tabulated; beyond the table each series follows the catalogue's
+    optically thin intensities, scaled to meet the last tabulated line (continuity, not a
+    recombination calculation)."""
+    out = np.array([CASE_B_HBETA.get((a, b), np.nan) for a, b in zip(nl, nu)])
+    for lower in np.unique(nl):
+        tab = [k for k in CASE_B_HBETA if k[0] == lower]
+        sel = (nl == lower) & ~np.isfinite(out)
+        if not np.any(sel):
+            continue
+        if not tab:
+            out[sel] = thin[sel] / np.max(thin[nl == lower])
+            continue
+        last = max(tab, key=lambda k: k[1])
+        out[sel] = CASE_B_HBETA[last] * thin[sel] / _thin_reference(int(lower), int(last[1]))
+    return out
