@@ -583,6 +583,63 @@ def _snap_steps(steps, feats, reach, y, *, blue_first=True):
     return np.asarray(out, int)
 
 
+def _merge_weak_blends(feats, x, r, sig, good, dx, n, fwhm_px, threshold):
+    """Fit as one line the blended components that are each too uncertain to keep.
+
+    A line whose profile is not quite a Gaussian (a saturated, flat-bottomed
+    absorption line; a line with a weak neighbour) can end up fitted as two
+    components a FWHM or so apart.  Such a pair is nearly degenerate: each part's
+    flux error is large and neither passes `_usable`, although their sum is
+    measured well, and the line would be lost.  Runs of such components of one
+    sign, within `BLEND_SEP` FWHM of each other, are replaced by one component
+    with their summed flux, flux-weighted centre and combined width, and refitted
+    with their neighbours.  Returns the new model of all features, or None when
+    nothing was merged."""
+    def weak(f):
+        fit = f.get("fit")
+        if not fit or not np.isfinite(fit["center"]) or not np.isfinite(fit["flux"]):
+            return False
+        return _usable(fit, x, dx, n, fwhm_px, threshold) is None and fit["flux_err"] > 0 \
+            and x[0] <= fit["center"] <= x[-1]
+    cands = sorted((f for f in feats if weak(f)), key=lambda f: f["fit"]["center"])
+    runs, run = [], []
+    for f in cands:
+        if run:
+            p = run[-1]["fit"]
+            q = f["fit"]
+            if np.sign(p["flux"]) == np.sign(q["flux"]) and \
+                    q["center"] - p["center"] < BLEND_SEP * max(p["fwhm"], q["fwhm"]):
+                run.append(f)
+                continue
+            if len(run) >= 2:
+                runs.append(run)
+        run = [f]
+    if len(run) >= 2:
+        runs.append(run)
+    if not runs:
+        return None
+    merged = []
+    for run in runs:
+        flux = np.array([f["fit"]["flux"] for f in run])
+        c = np.array([f["fit"]["center"] for f in run])
+        s2 = np.array([f["fit"]["fwhm"] / GAUSS_FWHM for f in run]) ** 2
+        wgt = flux / flux.sum()
+        centre = float(np.sum(wgt * c))
+        width = float(np.sqrt(np.sum(wgt * (s2 + (c - centre) ** 2)))) * GAUSS_FWHM
+        px = int(np.clip(np.searchsorted(x, centre), 0, n - 1))
+        fwhm_px = max(width / max(dx[px], 1e-300), 1.0)
+        amp = float(flux.sum() / (width / GAUSS_FWHM * np.sqrt(2 * np.pi)))
+        one = {"px": px, "fwhm_px": fwhm_px, "snr_det": max(f["snr_det"] for f in run),
+               "amp0": amp, "fit": None, "group": 1}
+        for f in run:
+            feats.remove(f)
+        feats.append(one)
+        merged.append(one)
+    model = _fit_groups(_groups(feats), x, r, sig, good, 0, n, dx, changed={id(f) for f in merged})
+    _sync(feats, x, dx, sig)
+    return model
+
+
 def _usable(fit, x, dx, n, fwhm_px, threshold):
     """(fitted S/N, pixel, FWHM in pixels, distance from the edge) of a fit worth
     reporting, else None: not a single-pixel spike, centre inside the segment, S/N at
@@ -701,6 +758,10 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset, *,
                                     exclude=exclude)
             r = y - cont
             feats, model, fresh = [], np.zeros(n), True
+    remodel = _merge_weak_blends(feats, x, r - fixed, sig, good, dx, n, fwhm_px, threshold) \
+        if feats else None
+    if remodel is not None:
+        model = remodel
     if frozen:
         # the held features measured last, on the data less everything else found
         _fit_groups(_groups(frozen), x, r - model, sig, good, 0, n, dx)

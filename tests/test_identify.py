@@ -304,3 +304,23 @@ def test_lines_beside_a_series_limit_trough_survive_a_failed_group_fit():
     assert res.status == "secure" and _correct(res.z, truth["z"])
     labels = {str(x) for x in res.features["label"]}
     assert {"Ly10", "Ly11", "Ly12", "Lyα", "Lyβ"} <= labels
+
+
+def test_saturated_lines_split_in_two_are_measured_as_one():
+    # a spectrum of the benchmark suite (invented data, seed 1 #116): a Balmer absorber at
+    # z = 0.877, R 48 000, lines saturated (Gaussian optical depth, flat-bottomed at S/N
+    # ~55).  The profile fit split H15-H18 each into two components about a FWHM apart;
+    # each part's flux error was then large (a nearly degenerate pair), neither passed the
+    # S/N cut, the four lines were lost and the solution, missing its members, with them.
+    # Such pairs are now refitted as one line
+    from linefinder.synthetic import random_parameters
+
+    gen = np.random.default_rng([1, 116, 0])
+    spec, truth = make_spectrum(gen, **random_parameters(gen), max_pixels=150_000)
+    res = identify(spec, mask_sky=True)
+    assert res.status == "secure" and _correct(res.z, truth["z"])
+    f = res.features
+    found = {str(x) for x, flags in zip(f["label"], f["flags"]) if "at_z" not in str(flags)}
+    assert {"H15", "H16", "H17", "H18", "Hα", "Hβ"} <= found
+    # one feature per line, not a pair
+    assert sum(str(x) == "H16" for x in f["label"]) == 1
