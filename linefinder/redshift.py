@@ -150,7 +150,9 @@ def search_shift(y, sy, w, x, strength, *, smin, smax, kinds_ok=None, tol=3.0, n
                              for i in range(0, len(cand), 2000)])
     order = np.argsort(-scores)
     chosen = []
-    sep = tol * float(np.median(sy))
+    # trial shifts one position error apart are distinct hypotheses (not the match
+    # tolerance apart: H I and its He II twin pattern lie ~3 errors apart at low R)
+    sep = float(np.median(sy))
     for k in order:
         if scores[k] <= 0:
             break
@@ -329,11 +331,21 @@ def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterati
     sol = Solution(s=s, s_err=np.inf, score=0.0)
     st_flux = strength if intensity_strength is None else intensity_strength
     banned = set()
+    kept = []       # the previous round's pairs
     for _ in range(iterations):
         d = (y[:, None] - s - x[None, :]) / sy[:, None]
         ok = (np.abs(d) < tol) & kinds_ok[None, :]
         pairs = []
         used_f, used_l = set(), set()
+        # a feature keeps the line it was matched to while that stays within tolerance: the
+        # shift fitted to the first matches must not carry the solution over to a twin
+        # pattern (He II n -> 2n against H I, 4e-4 apart in ln) that happens to lie nearer
+        # after the fit; each trial shift is one hypothesis, and the search tries both
+        for i, j in kept:
+            if ok[i, j] and (i, j) not in banned:
+                used_f.add(i)
+                used_l.add(j)
+                pairs.append((i, j))
         for flat in np.argsort(np.where(ok, np.abs(d), np.inf), axis=None):
             i, j = divmod(int(flat), d.shape[1])
             if not ok[i, j]:
@@ -403,6 +415,7 @@ def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterati
         if abs(s_new - s) < 1e-3 * s_err:
             break
         s = s_new
+        kept = pairs
     return sol
 
 
