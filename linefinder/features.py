@@ -594,9 +594,10 @@ def _merge_weak_blends(feats, x, r, sig, good, dx, n, fwhm_px, threshold):
     components a FWHM or so apart.  Such a pair is nearly degenerate: each part's
     flux error is large and neither passes `_usable`, although their sum is
     measured well, and the line would be lost.  Runs of such components of one
-    sign, within `BLEND_SEP` FWHM of each other, are replaced by one component
-    with their summed flux, flux-weighted centre and combined width, and refitted
-    with their neighbours.  Returns the new model of all features, or None when
+    sign and comparable width, within `BLEND_SEP` FWHM of each other, are replaced
+    by one component with their summed flux, flux-weighted centre and combined
+    width, and refitted with their neighbours; the refit can leave a neighbouring
+    pair too uncertain in its turn, so this is repeated (three rounds at most).  Returns the new model of all features, or None when
     nothing was merged."""
     def weak(f):
         fit = f.get("fit")
@@ -610,8 +611,11 @@ def _merge_weak_blends(feats, x, r, sig, good, dx, n, fwhm_px, threshold):
         if run:
             p = run[-1]["fit"]
             q = f["fit"]
-            if np.sign(p["flux"]) == np.sign(q["flux"]) and \
-                    q["center"] - p["center"] < BLEND_SEP * max(p["fwhm"], q["fwhm"]):
+            # of one sign, comparable widths (a broad trough's component is no part of a
+            # line), within BLEND_SEP of the narrower: no chains along a series limit
+            narrow, wide = sorted((p["fwhm"], q["fwhm"]))
+            if np.sign(p["flux"]) == np.sign(q["flux"]) and wide < 2.5 * narrow and \
+                    q["center"] - p["center"] < BLEND_SEP * narrow:
                 run.append(f)
                 continue
             if len(run) >= 2:
@@ -761,9 +765,11 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset, *,
                                     exclude=exclude)
             r = y - cont
             feats, model, fresh = [], np.zeros(n), True
-    remodel = _merge_weak_blends(feats, x, r - fixed, sig, good, dx, n, fwhm_px, threshold) \
-        if feats else None
-    if remodel is not None:
+    for _ in range(3):
+        remodel = _merge_weak_blends(feats, x, r - fixed, sig, good, dx, n, fwhm_px, threshold) \
+            if feats else None
+        if remodel is None:
+            break
         model = remodel
     if frozen:
         # the held features measured last, on the data less everything else found

@@ -341,3 +341,20 @@ def test_balmer_lines_are_not_carried_over_to_their_he_ii_twins():
     assert res.status in ("tentative", "secure") and _correct(res.z, truth["z"])
     labels = {str(x) for x in res.features["label"]}
     assert {"Hα", "Hβ"} <= labels and not any(x.startswith("He II") for x in labels)
+
+
+def test_a_merged_pair_leaves_its_neighbours_measured():
+    # a spectrum of the benchmark suite (invented data, seed 4 #337): a Balmer absorber at
+    # z = 0.501, R 38 500, S/N ~60.  H17 and H18 were each fitted as near-degenerate pairs;
+    # merging one pair and refitting left the next too uncertain, and a broad trough's
+    # component chained the merge along the series limit: both lines and the redshift were
+    # lost.  Merging is now limited to components of comparable width and repeated
+    from linefinder.synthetic import random_parameters
+
+    gen = np.random.default_rng([4, 337, 0])
+    spec, truth = make_spectrum(gen, **random_parameters(gen), max_pixels=150_000)
+    res = identify(spec, mask_sky=True)
+    assert res.status == "secure" and _correct(res.z, truth["z"])
+    f = res.features
+    found = {str(x) for x, flags in zip(f["label"], f["flags"]) if "at_z" not in str(flags)}
+    assert {"H15", "H16", "H18", "Hα"} <= found
