@@ -567,10 +567,7 @@ def _snap_steps(steps, feats, reach, y, *, blue_first=True):
     falling frequency or energy axis)."""
     out = []
     for p in steps:
-        # (within the reach, or two of the line's widths: for a line broader than the
-        # resolution the step is found at its foot, a FWHM or more from its centre)
-        near = [f for f in feats if f["amp0"] > 0
-                and abs(f["px"] - p) <= max(reach, 2.0 * f["fwhm_px"])]
+        near = [f for f in feats if f["amp0"] > 0 and abs(f["px"] - p) <= reach]
         if near:
             out.append(int(np.ceil(max(near, key=lambda f: f["amp0"])["px"])))
             continue

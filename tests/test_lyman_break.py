@@ -45,23 +45,6 @@ def _lya_spectrum(rng, *, z, step, R=3000.0, amp=15.0, cont=5.0, slope=-1.0, noi
     return spec, c
 
 
-def test_a_step_at_a_broad_line_foot_moves_to_the_line():
-    # a Lyman break under a Lyα line 25 resolution elements broad (~190 km/s at R = 40 000,
-    # 62 pixels): the step search places the level change at the line's blue foot, about a
-    # FWHM from its centre.  It is moved to the line's centre, where the forest begins; left
-    # at the foot it lifts the continuum under the line's blue half and pulls the fitted
-    # centre redward (a suite emitter, seed 3 #507, was measured 0.5 FWHM off this way)
-    from linefinder.features import _snap_steps
-
-    n, p, reach = 3000, 1450, 25
-    y = np.where(np.arange(n) < p, 3.0, 10.0)
-    line = {"px": 1512, "amp0": 6.0, "fwhm_px": 40.0}     # as the matched filter sees it
-    assert list(_snap_steps([p], [line], reach, y)) == [1512]
-    # a narrow line as far away is not the step's: the step stays where it was found
-    narrow = dict(line, fwhm_px=2.5)
-    assert list(_snap_steps([p], [narrow], reach, y)) == [p]
-
-
 def test_continuum_step_measures_the_ratio_with_an_honest_error(rng):
     pulls = []
     for _ in range(60):
