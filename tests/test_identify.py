@@ -12,11 +12,19 @@ from linefinder.line_lists import read_line_list
 from linefinder.readers import read_input
 from linefinder.samples import sample_path
 from linefinder.spectrum import SpectrumData
-from linefinder.synthetic import make_spectrum
+from linefinder.synthetic import make_spectrum, random_parameters
 
 
 def _correct(z, z0):
     return z is not None and abs(z - z0) < 5e-4 * (1 + z0)
+
+
+def _suite_spectrum(seed, index):
+    """Spectrum `index` of the benchmark suite's seed `seed` (invented data, as
+    benchmarks/bench_identify.py makes it), identified as there; (result, truth)."""
+    gen = np.random.default_rng([seed, index, 0])
+    spec, truth = make_spectrum(gen, **random_parameters(gen), max_pixels=150_000)
+    return identify(spec, mask_sky=True), truth
 
 
 # Exact aliases of hydrogenic spectra (Rydberg formula, 1/lambda = R Z^2 (1/n'^2 - 1/n^2)):
@@ -181,12 +189,7 @@ def test_lone_lya_with_a_break_beside_weak_dips_is_named():
     # a spectrum of the benchmark suite (invented data, seed 1): Lyα alone at z = 5.66
     # (R 27700), the continuum blueward of it at ~5 % of the red side, and a handful of
     # continuum dips at the detection limit; the break names the line
-    from linefinder.synthetic import random_parameters
-
-    gen = np.random.default_rng([1, 21, 0])
-    p = random_parameters(gen)
-    spec, truth = make_spectrum(gen, **p, max_pixels=150_000)
-    res = identify(spec, mask_sky=True)
+    res, truth = _suite_spectrum(1, 21)
     assert res.lyman_break is not None
     assert res.status == "tentative"
     assert abs(res.z - truth["z"]) < 5e-4 * (1 + truth["z"])
@@ -198,11 +201,7 @@ def test_break_named_lya_below_the_fitted_detection_limit():
     # (R 2900), detected by the matched filter but at a fitted S/N of 4.3 (a free width and
     # baseline take a third of it); the forest takes 16 % of the continuum blueward, and the
     # break still names the line
-    from linefinder.synthetic import random_parameters
-
-    gen = np.random.default_rng([1, 187, 0])
-    spec, truth = make_spectrum(gen, **random_parameters(gen), max_pixels=150_000)
-    res = identify(spec, mask_sky=True)
+    res, truth = _suite_spectrum(1, 187)
     assert res.lyman_break is not None
     k = res.lyman_break["feature"]
     assert 4.0 < res.features["snr"][k] < 5.0
@@ -268,14 +267,10 @@ def test_no_line_is_measured_where_z_puts_none(rng):
 # spectra of the benchmark suite (invented data): Lyman-series absorbers whose members next
 # to the merged trough below the series limit (about 2 FWHM apart) the search leaves out;
 # seed 2 #310: z = 5.12, R 1100, lines at S/N ~60; seed 2 #6: z = 6.20, R 3100, S/N ~7
-@pytest.mark.parametrize("seed, missed", [((2, 310, 0), ("Ly10", "Ly11")),
-                                          ((2, 6, 0), ("Ly13", "Ly14", "Ly15"))])
+@pytest.mark.parametrize("seed, missed", [((2, 310), ("Ly10", "Ly11")),
+                                          ((2, 6), ("Ly13", "Ly14", "Ly15"))])
 def test_series_members_the_search_missed_are_measured_at_z(seed, missed):
-    from linefinder.synthetic import random_parameters
-
-    gen = np.random.default_rng(list(seed))
-    spec, truth = make_spectrum(gen, **random_parameters(gen), max_pixels=150_000)
-    res = identify(spec, mask_sky=True)
+    res, truth = _suite_spectrum(*seed)
     assert res.status == "secure" and _correct(res.z, truth["z"])
     f = res.features
     true = {l["label"]: l for l in truth["lines"]}
@@ -296,11 +291,7 @@ def test_lines_beside_a_series_limit_trough_survive_a_failed_group_fit():
     # fit of Ly10-Ly12 off, the lines vanished with it, and the solution, missing its
     # members there, was lost.  They are now reported with their last converged fit
     # (flagged poor_fit), and the redshift is found
-    from linefinder.synthetic import random_parameters
-
-    gen = np.random.default_rng([3, 65, 0])
-    spec, truth = make_spectrum(gen, **random_parameters(gen), max_pixels=150_000)
-    res = identify(spec, mask_sky=True)
+    res, truth = _suite_spectrum(3, 65)
     assert res.status == "secure" and _correct(res.z, truth["z"])
     labels = {str(x) for x in res.features["label"]}
     assert {"Ly10", "Ly11", "Ly12", "Lyα", "Lyβ"} <= labels
@@ -313,11 +304,7 @@ def test_saturated_lines_split_in_two_are_measured_as_one():
     # each part's flux error was then large (a nearly degenerate pair), neither passed the
     # S/N cut, the four lines were lost and the solution, missing its members, with them.
     # Such pairs are now refitted as one line
-    from linefinder.synthetic import random_parameters
-
-    gen = np.random.default_rng([1, 116, 0])
-    spec, truth = make_spectrum(gen, **random_parameters(gen), max_pixels=150_000)
-    res = identify(spec, mask_sky=True)
+    res, truth = _suite_spectrum(1, 116)
     assert res.status == "secure" and _correct(res.z, truth["z"])
     f = res.features
     found = {str(x) for x, flags in zip(f["label"], f["flags"]) if "at_z" not in str(flags)}
@@ -333,11 +320,7 @@ def test_balmer_lines_are_not_carried_over_to_their_he_ii_twins():
     # of the Balmer pattern was merged into that of the twin pattern before refinement, and
     # the refinement, pulled by the [O II] blend, hopped from Hα/Hβ to the twins: the answer
     # was a He II system with its strong lines missing, and no redshift
-    from linefinder.synthetic import random_parameters
-
-    gen = np.random.default_rng([3, 253, 0])
-    spec, truth = make_spectrum(gen, **random_parameters(gen), max_pixels=150_000)
-    res = identify(spec, mask_sky=True)
+    res, truth = _suite_spectrum(3, 253)
     assert res.status in ("tentative", "secure") and _correct(res.z, truth["z"])
     labels = {str(x) for x in res.features["label"]}
     assert {"Hα", "Hβ"} <= labels and not any(x.startswith("He II") for x in labels)
@@ -349,11 +332,7 @@ def test_a_merged_pair_leaves_its_neighbours_measured():
     # merging one pair and refitting left the next too uncertain, and a broad trough's
     # component chained the merge along the series limit: both lines and the redshift were
     # lost.  Merging is now limited to components of comparable width and repeated
-    from linefinder.synthetic import random_parameters
-
-    gen = np.random.default_rng([4, 337, 0])
-    spec, truth = make_spectrum(gen, **random_parameters(gen), max_pixels=150_000)
-    res = identify(spec, mask_sky=True)
+    res, truth = _suite_spectrum(4, 337)
     assert res.status == "secure" and _correct(res.z, truth["z"])
     f = res.features
     found = {str(x) for x, flags in zip(f["label"], f["flags"]) if "at_z" not in str(flags)}
