@@ -593,9 +593,9 @@ def _merge_weak_blends(feats, x, r, sig, good, dx, n, fwhm_px, threshold):
     measured well, and the line would be lost.  Runs of such components of one
     sign and comparable width, within `BLEND_SEP` FWHM of each other, are replaced
     by one component with their summed flux, flux-weighted centre and combined
-    width, and refitted with their neighbours; the refit can leave a neighbouring
-    pair too uncertain in its turn, so this is repeated (three rounds at most).  Returns the new model of all features, or None when
-    nothing was merged."""
+    width, and refitted with their neighbours (the refit can leave a neighbouring
+    pair too uncertain in its turn: the caller repeats this).  Returns the new model
+    of all features, or None when nothing was merged."""
     def weak(f):
         fit = f.get("fit")
         if not fit or not np.isfinite(fit["center"]) or not np.isfinite(fit["flux"]):
@@ -631,9 +631,9 @@ def _merge_weak_blends(feats, x, r, sig, good, dx, n, fwhm_px, threshold):
         centre = float(np.sum(wgt * c))
         width = float(np.sqrt(np.sum(wgt * (s2 + (c - centre) ** 2)))) * GAUSS_FWHM
         px = int(np.clip(np.searchsorted(x, centre), 0, n - 1))
-        fwhm_px = max(width / max(dx[px], 1e-300), 1.0)
+        width_px = max(width / max(dx[px], 1e-300), 1.0)
         amp = float(flux.sum() / (width / GAUSS_FWHM * np.sqrt(2 * np.pi)))
-        one = {"px": px, "fwhm_px": fwhm_px, "snr_det": max(f["snr_det"] for f in run),
+        one = {"px": px, "fwhm_px": width_px, "snr_det": max(f["snr_det"] for f in run),
                "amp0": amp, "fit": None, "group": 1}
         for f in run:
             feats.remove(f)
@@ -762,7 +762,7 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset, *,
                                     exclude=exclude)
             r = y - cont
             feats, model, fresh = [], np.zeros(n), True
-    for _ in range(3):
+    for _ in range(3):     # three rounds at most
         remodel = _merge_weak_blends(feats, x, r - fixed, sig, good, dx, n, fwhm_px, threshold) \
             if feats else None
         if remodel is None:

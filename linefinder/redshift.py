@@ -339,7 +339,7 @@ def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterati
         used_f, used_l = set(), set()
         # a feature keeps the line it was matched to while that stays within tolerance: the
         # shift fitted to the first matches must not carry the solution over to a twin
-        # pattern (He II n -> 2n against H I, 4e-4 apart in ln) that happens to lie nearer
+        # pattern (He II 2m -> 4 against H I m -> 2, 4e-4 apart in ln) that lies nearer
         # after the fit; each trial shift is one hypothesis, and the search tries both
         for i, j in kept:
             if ok[i, j] and (i, j) not in banned:
