@@ -4,8 +4,9 @@ Emission: Case B recombination ratios for H I and D I (Storey & Hummer 1995,
 extended beyond the table along the optically thin intensities); the
 catalogue's optically thin intensities for the other species.  Absorption:
 a flat curve of growth, (f lambda)^(1/3) relative to the series' strongest
-line.  Both are assumptions of the search, stated in the report, not
-measurements of the source.
+line.  Both are assumptions of the search, not measurements of the source;
+`strength_assumption` states the one used, and identify records it in its
+metadata (``intensity_model``, in the JSON summary and the ECSV table).
 """
 
 import functools
@@ -16,13 +17,38 @@ from astropy import units as u
 from .catalogue import build_catalogue
 from .matching import CASE_B_HBETA
 
-__all__ = ["expected_strengths", "group_keys", "multiplet_codes", "thin_intensity", "is_primary"]
+__all__ = ["expected_strengths", "strength_assumption", "group_keys", "multiplet_codes",
+           "thin_intensity", "is_primary"]
+
+
+# across species: hydrogen dominates; helium, carbon and isotopes are usually far weaker
+# (He/H ~ 0.1 by number; a rule of thumb for the search, not a physical claim)
+SECONDARY_WEIGHT = 0.25
+
+
+def strength_assumption(kind):
+    """In words: what the expected strengths of `expected_strengths(cat, kind)` assume."""
+    if kind == "absorption":
+        return ("absorption: flat curve of growth, strength (f lambda)^(1/3) relative to the "
+                "strongest line of each species and series; species other than the primary "
+                f"(H I when searched for) x {SECONDARY_WEIGHT}")
+    return ("emission: Case B recombination ratios for H I and D I (T = 1e4 K, n_e = 100 cm^-3; "
+            "beyond the table, optically thin g_u A / lambda scaled to the last tabulated line); "
+            "optically thin intensities for other species; species other than the primary "
+            f"(H I when searched for) x {SECONDARY_WEIGHT}")
+
+
+def _joined(cat, *cols):
+    """The columns `cols` of every line as one string key, '|'-separated."""
+    key = np.asarray(cat[cols[0]]).astype(str)
+    for c in cols[1:]:
+        key = np.char.add(np.char.add(key, "|"), np.asarray(cat[c]).astype(str))
+    return key
 
 
 def group_keys(cat):
     """'species|series' of every line: the groups within which strengths are relative."""
-    return np.char.add(np.char.add(np.asarray(cat["species"]).astype(str), "|"),
-                       np.asarray(cat["series"]).astype(str))
+    return _joined(cat, "species", "series")
 
 
 def multiplet_codes(cat):
@@ -30,10 +56,7 @@ def multiplet_codes(cat):
     fine-structure components of one line share it."""
     if not len(cat):
         return np.zeros(0, dtype=int)
-    key = np.char.add(np.char.add(np.asarray(cat["species"]).astype(str), "|"),
-                      np.char.add(np.asarray(cat["n_lower"]).astype(str),
-                                  np.char.add("-", np.asarray(cat["n_upper"]).astype(str))))
-    return np.unique(key, return_inverse=True)[1]
+    return np.unique(_joined(cat, "species", "n_lower", "n_upper"), return_inverse=True)[1]
 
 
 def thin_intensity(cat):
@@ -59,9 +82,7 @@ def expected_strengths(cat, kind="emission"):
     thumb of this tool.
     """
     key = group_keys(cat)
-    # across species: hydrogen dominates; helium, carbon and isotopes are usually far weaker
-    # (He/H ~ 0.1 by number; a rule of thumb for the search, not a physical claim)
-    species_weight = np.where(is_primary(cat), 1.0, 0.25)
+    species_weight = np.where(is_primary(cat), 1.0, SECONDARY_WEIGHT)
     if kind == "absorption":
         return _absorption_strengths(cat, key) * species_weight, key
     strength = np.zeros(len(cat))

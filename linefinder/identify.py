@@ -33,7 +33,8 @@ from .catalogue import build_catalogue
 from .companions import companion_lines
 from .contaminants import sky_mask
 from .doppler import C_KMS
-from .expected_strengths import expected_strengths, is_primary, multiplet_codes
+from .expected_strengths import (expected_strengths, is_primary, multiplet_codes,
+                                 strength_assumption)
 from .feature_table import append_at_z, fill, new_table, peaks_as_features
 from .line_lists import read_line_list
 from .lyman_break import GAP_FWHM, WINDOW_LN, continuum_step, is_break, mean_transmission
@@ -361,6 +362,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                    "z_fixed": z is not None, "sky_masked": bool(mask_sky),
                    "telluric_masked": bool(mask_telluric),
                    "companions": [c["name"] for c in comp],
+                   "intensity_model": strength_assumption(main_kind),
                    "constants": cat.meta.get("constants"), "catalogue": dict(cat.meta)}
     return result
 

@@ -47,6 +47,9 @@ def test_identify_json_contract(capsys):
     assert "unidentified" in res
     ha = [r for r in res["features"] if r["label"] == "Hα"][0]
     assert ha["species"] == "H I" and (ha["n_lower"], ha["n_upper"]) == (2, 3)
+    # the intensity assumption behind the scores is stated: an emission spectrum is scored
+    # against Case B recombination ratios
+    assert res["meta"]["intensity_model"].startswith("emission: Case B")
 
 
 def test_featureless_spectrum_status_none(rng, capsys, tmp_path):
