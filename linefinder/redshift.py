@@ -68,6 +68,14 @@ class Solution:
         return len(self.matches)
 
 
+def _median(a):
+    """Median of a small finite array, as np.median gives it (whose call overhead is most
+    of the cost at the sizes met here: a few to a few tens of lines)."""
+    a = np.sort(np.asarray(a, dtype=float), axis=None)
+    n = a.size
+    return float(0.5 * (a[(n - 1) // 2] + a[n // 2]))
+
+
 def _nearest(sorted_x, values):
     idx = np.clip(np.searchsorted(sorted_x, values), 1, len(sorted_x) - 1)
     left = sorted_x[idx - 1]
@@ -142,7 +150,8 @@ def search_shift(y, sy, w, x, strength, *, smin, smax, kinds_ok=None, tol=3.0, n
         cand = np.array([0.0])
     if len(cand) == 0:
         return []
-    step = 0.5 * float(np.median(sy))
+    med_sy = _median(sy)
+    step = 0.5 * med_sy
     cand = np.unique(np.round(cand / step)) * step
     if window is None:
         window = (y.min() - 3 * sy.max(), y.max() + 3 * sy.max())
@@ -152,7 +161,7 @@ def search_shift(y, sy, w, x, strength, *, smin, smax, kinds_ok=None, tol=3.0, n
     chosen = []
     # trial shifts one position error apart are distinct hypotheses (not the match
     # tolerance apart: H I and its He II twin pattern lie ~3 errors apart at low R)
-    sep = float(np.median(sy))
+    sep = med_sy
     for k in order:
         if scores[k] <= 0:
             break
@@ -169,7 +178,7 @@ def search_shift(y, sy, w, x, strength, *, smin, smax, kinds_ok=None, tol=3.0, n
     # refinement can bring two trial shifts onto one solution: keep the better
     unique = []
     for s in sorted(sols, key=lambda s: -s.score):
-        if all(abs(s.s - u.s) > max(3 * s.s_err, 3 * u.s_err, float(np.median(sy)))
+        if all(abs(s.s - u.s) > max(3 * s.s_err, 3 * u.s_err, med_sy)
                for u in unique):
             unique.append(s)
     return unique[:n_solutions]
@@ -219,7 +228,7 @@ def _missing_lines(s, y, sy, w, x, strength, fi, lj, used_l, window, tol, fwhm_l
     for g in set(group[lj].tolist()):
         ok = (group[lj] == g) & (strength[lj] > 0)
         if ok.sum() >= 2:     # one matched line may be a chance coincidence: no scale
-            per_unit[g] = float(np.median(snr[ok] / strength[lj][ok]))
+            per_unit[g] = _median(snr[ok] / strength[lj][ok])
     xo = x + s
     inside = np.flatnonzero((xo > window[0]) & (xo < window[1]) & (strength > 0)
                             & np.isin(group, list(per_unit)))
@@ -238,7 +247,7 @@ def _missing_lines(s, y, sy, w, x, strength, fi, lj, used_l, window, tol, fwhm_l
             near_gap = np.minimum(np.concatenate([[np.inf], gap]), np.concatenate([gap, [np.inf]]))
             keep[order[near_gap < 2 * fwhm_ln]] = False
         inside = inside[keep]
-    tol_ln = max(tol * float(np.median(sy)), fwhm_ln)
+    tol_ln = max(tol * _median(sy), fwhm_ln)
     scale = np.array([per_unit.get(g, 0.0) for g in group[inside].tolist()])
     pred = scale * strength[inside]
     cand = (pred > MISSING_SNR) & ~np.isin(inside, list(used_l))
@@ -273,8 +282,8 @@ def _intensity_terms(flux, strength, sigma, sigma_random=RANDOM_FLUX_SIGMA):
         return terms, 0.0
     v = np.log(flux[ok] / strength[ok])
     v0 = np.log(flux[ok])
-    dev = v - np.median(v)
-    dev0 = v0 - np.median(v0)
+    dev = v - _median(v)
+    dev0 = v0 - _median(v0)
     terms[ok] = np.log(sigma_random / sigma) - 0.5 * (dev / sigma) ** 2 + 0.5 * (dev0 / sigma_random) ** 2
     return terms, float(np.log(sigma_random / sigma))
 
@@ -346,10 +355,9 @@ def refine(s0, y, sy, w, x, strength, kinds_ok, *, tol=3.0, window=None, iterati
                 used_f.add(i)
                 used_l.add(j)
                 pairs.append((i, j))
-        for flat in np.argsort(np.where(ok, np.abs(d), np.inf), axis=None):
-            i, j = divmod(int(flat), d.shape[1])
-            if not ok[i, j]:
-                break
+        oi, oj = np.nonzero(ok)
+        for k in np.argsort(np.abs(d[oi, oj]), kind="stable"):
+            i, j = int(oi[k]), int(oj[k])
             if i in used_f or j in used_l or (i, j) in banned:
                 continue
             used_f.add(i)
