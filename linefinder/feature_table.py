@@ -9,7 +9,7 @@ into the measured-feature form.
 
 import numpy as np
 from astropy import units as u
-from astropy.table import QTable, vstack
+from astropy.table import QTable
 from scipy.special import erf
 
 from .contaminants import sky_mask
@@ -85,14 +85,23 @@ def fill(out, idx, res, cat, y, s, extra, system=1):
     those of `extra`: companions and the user's lines)."""
     ncat = len(cat)
     lam_cat = cat["wavelength_vacuum"].to_value(u.m) if ncat else np.zeros(0)
+    # plain arrays, read and written element by element (a table column's item access
+    # costs more than the work done with the item)
+    label, species, series = (np.asarray(cat[c]).astype(str) if ncat else np.zeros(0, str)
+                              for c in ("label", "species", "series"))
+    n_lo, n_up = (np.asarray(cat[c], dtype=int) if ncat else np.zeros(0, int)
+                  for c in ("n_lower", "n_upper"))
+    unit = out["center"].unit
+    centre = u.Quantity(out["center"]).value
+    on_wavelength = unit.is_equivalent(u.m)
+    rest_nm, resid_val = out["rest_wavelength_vacuum"].value, out["residual"].value
     out.meta.setdefault("alternatives_detail", {})
     for k, i in enumerate(idx):
         j = int(res.best[k])
         alts = [(a, p) for a, p in res.alternatives(k) if a < ncat]
         out.meta["alternatives_detail"][int(i)] = [
-            {"label": str(cat["label"][a]), "species": str(cat["species"][a]),
-             "n_lower": int(cat["n_lower"][a]), "n_upper": int(cat["n_upper"][a]), "score": float(p)}
-            for a, p in alts]
+            {"label": label[a], "species": species[a], "n_lower": int(n_lo[a]),
+             "n_upper": int(n_up[a]), "score": float(p)} for a, p in alts]
         if j < 0:
             continue
         if j >= ncat:
@@ -100,25 +109,23 @@ def fill(out, idx, res, cat, y, s, extra, system=1):
             out["companion" if line.get("source") == "companion" else "user_line"][i] = line["name"]
             out["score"][i] = float(res.score[k])
             continue
-        out["label"][i] = str(cat["label"][j])
-        out["species"][i] = str(cat["species"][j])
-        out["series"][i] = str(cat["series"][j])
-        out["n_lower"][i] = int(cat["n_lower"][j])
-        out["n_upper"][i] = int(cat["n_upper"][j])
-        out["rest_wavelength_vacuum"][i] = lam_cat[j] * 1e9 * u.nm
+        out["label"][i] = label[j]
+        out["species"][i] = species[j]
+        out["series"][i] = series[j]
+        out["n_lower"][i] = n_lo[j]
+        out["n_upper"][i] = n_up[j]
+        rest_nm[i] = lam_cat[j] * 1e9
         dln = y[k] - s - np.log(lam_cat[j])
         out["residual_kms"][i] = float(C_KMS * dln)
-        c = out["center"][i]
-        if c.unit.is_equivalent(u.m):
-            out["residual"][i] = float(c.value * (1 - np.exp(-dln))) * c.unit
+        if on_wavelength:
+            resid_val[i] = float(centre[i] * (1 - np.exp(-dln)))
         else:
-            pred = (np.exp(s) * lam_cat[j] * u.m).to(c.unit, equivalencies=u.spectral())
-            out["residual"][i] = c - pred
+            pred = (np.exp(s) * lam_cat[j] * u.m).to_value(unit, equivalencies=u.spectral())
+            resid_val[i] = centre[i] - pred
         out["residual_sigma"][i] = float(res.resid[k])
         out["score"][i] = float(res.score[k])
         out["system"][i] = system
-        out["alternatives"][i] = "; ".join(f"{cat['species'][a]} {cat['label'][a]} ({p:.2f})"
-                                           for a, p in alts)
+        out["alternatives"][i] = "; ".join(f"{species[a]} {label[a]} ({p:.2f})" for a, p in alts)
 
 
 def append_at_z(out, best, cat, x, group, primary, s, s_err, pixels, y, fwhm_ln, kind,
@@ -145,9 +152,9 @@ def append_at_z(out, best, cat, x, group, primary, s, s_err, pixels, y, fwhm_ln,
         return out
     ax, flux, sigma, cont = pixels
     lines = np.flatnonzero(primary & np.isfinite(width))
+    sign = 1.0 if kind == "emission" else -1.0
     amp, err = measure_predicted(ax, flux - cont, sigma, x[cand] + s, cand_w, x[lines] + s,
                                  width[lines], y, fwhm_ln, blob)
-    sign = 1.0 if kind == "emission" else -1.0
     with np.errstate(divide="ignore", invalid="ignore"):
         snr = sign * amp / err
     ok = np.isfinite(snr) & (snr >= AT_Z_SNR)
@@ -175,18 +182,16 @@ def append_at_z(out, best, cat, x, group, primary, s, s_err, pixels, y, fwhm_ln,
     new["kind"] = np.full(len(cand), kind)
     new["flags"] = np.full(len(cand), "at_z")
     new = new_table(new, np.zeros(len(cand), bool), np.zeros(len(cand), bool), False, False)
-    lam_rest = cat["wavelength_vacuum"].to_value(u.nm)
-    for k, j in enumerate(cand):
-        for col in ("label", "species", "series", "n_lower", "n_upper"):
-            new[col][k] = cat[col][j]
-        new["rest_wavelength_vacuum"][k] = lam_rest[j] * u.nm
-        new["residual_kms"][k] = 0.0
-        new["residual"][k] = 0.0 * unit
-        new["residual_sigma"][k] = 0.0
-        new["score"][k] = float(probability * erf(snr[k] / np.sqrt(2.0)))
-        new["system"][k] = 1
-    meta = dict(out.meta)
-    both = vstack([out, new], join_type="exact", metadata_conflicts="silent")
-    both.meta = meta
+    for col in ("label", "species", "series", "n_lower", "n_upper"):
+        new[col] = np.asarray(cat[col][cand]).astype(new[col].dtype)
+    new["rest_wavelength_vacuum"] = cat["wavelength_vacuum"][cand].to(u.nm)
+    new["residual_kms"] = 0.0
+    new["residual"] = np.zeros(len(cand)) * unit
+    new["residual_sigma"] = 0.0
+    new["score"] = probability * erf(snr / np.sqrt(2.0))
+    new["system"] = 1
+    # (one table of the same columns appended: column by column, without vstack's checks)
+    both = QTable([np.concatenate([out[c], new[c]]) for c in out.colnames], names=out.colnames)
+    both.meta = dict(out.meta)
     both.meta["at_z_snr"] = AT_Z_SNR
     return both
