@@ -14,7 +14,7 @@ from scipy.special import erf
 
 from .contaminants import sky_mask
 from .doppler import C_KMS
-from .forced import choose_lines, measure_predicted
+from .forced import bridge_crowded, choose_lines, measure_predicted
 from .medium import vacuum_to_air
 
 __all__ = ["new_table", "fill", "append_at_z", "peaks_as_features", "AT_Z_SNR"]
@@ -153,6 +153,7 @@ def append_at_z(out, best, cat, x, group, primary, s, s_err, pixels, y, fwhm_ln,
     ax, flux, sigma, cont = pixels
     lines = np.flatnonzero(primary & np.isfinite(width))
     sign = 1.0 if kind == "emission" else -1.0
+    cont, _ = bridge_crowded(ax, flux, sigma, cont, x[lines] + s, width[lines], y, fwhm_ln)
     amp, err = measure_predicted(ax, flux - cont, sigma, x[cand] + s, cand_w, x[lines] + s,
                                  width[lines], y, fwhm_ln, blob)
     with np.errstate(divide="ignore", invalid="ignore"):

@@ -10,7 +10,10 @@ predicted line and one per neighbouring feature (at its own measured centre
 and width), with amplitudes from a weighted linear least-squares fit to the
 flux less the continuum.  Their 1-sigma errors come from the covariance of
 that fit, so a line that its neighbours could equally explain gets a large
-error and is not claimed.
+error and is not claimed.  Near a series limit the continuum under them is first
+fitted again with every predicted line left out (`bridge_crowded`): the continuum
+found before the redshift was known bends into the crowd of lines too weak to be
+found one by one, and would take part of their depth.
 
 Numerics only (ln wavelength, flux and noise arrays); `identify` chooses the
 lines and turns the measurements into rows of its feature table.
@@ -19,7 +22,8 @@ lines and turns the measurements into rows of its feature table.
 import numpy as np
 
 __all__ = ["gaussian_templates", "fixed_profile_fit", "choose_lines", "measure_predicted",
-           "FWHM_TO_SIGMA", "N_BEYOND", "BLOB_WIDTHS"]
+           "bridge_crowded", "FWHM_TO_SIGMA", "N_BEYOND", "BLOB_WIDTHS", "CROWD_HALF_WIDTH",
+           "CROWD_MIN_RUN"]
 
 # predicted lines are tried up to this many upper levels beyond the highest identified one of
 # their series (the next lines of a series are weaker still): a rule of this tool
@@ -29,6 +33,10 @@ N_BEYOND = 3
 BLOB_WIDTHS = 2.5
 
 FWHM_TO_SIGMA = 1.0 / np.sqrt(8.0 * np.log(2.0))
+# the continuum under a crowd of predicted lines is bridged (`bridge_crowded`) where their
+# +/- CROWD_HALF_WIDTH FWHM reaches join into a stretch over CROWD_MIN_RUN FWHM long
+CROWD_HALF_WIDTH = 1.5
+CROWD_MIN_RUN = 6.0
 
 
 def gaussian_templates(x, centres, fwhm):
@@ -131,6 +139,65 @@ def measure_predicted(ax, resid, sigma, cand_x, cand_w, line_x, line_w, feat_x, 
         p, e = fixed_profile_fit(ax[a:b], resid[a:b], sigma[a:b], centres[own], widths[own])
         amp[members], err[members] = p[:len(members)], e[:len(members)]
     return amp, err
+
+
+def bridge_crowded(ax, flux, sigma, cont, line_x, line_w, feat_x=(), feat_w=()):
+    """The continuum with each crowded stretch of predicted lines refitted; and the mask of
+    the refitted pixels.
+
+    Near a series limit the lines stand closer than a few FWHM: the spline continuum
+    fitted before the redshift was known could not tell their overlapping wings (the
+    members too weak to be found, above all) from the continuum and bent into them.
+    Where the reaches (+/- `CROWD_HALF_WIDTH` FWHM) of the lines `line_x` (ln vacuum
+    wavelength, FWHM `line_w`) join into one stretch over `CROWD_MIN_RUN` median FWHM
+    long, the continuum is fitted again (`continuum.fit_continuum`, knots 12 FWHM
+    apart) to the flux around it with the reaches of every predicted line and of every
+    feature (`feat_x`, `feat_w`) left out, so that the spline bridges the crowd from the
+    clean pixels on either side, as one draws it by hand over a series limit; the refit
+    replaces the continuum inside the stretch.  A stretch without clean pixels on both
+    sides is left as it is.
+    """
+    from .continuum import fit_continuum
+
+    ax, flux, sigma = (np.asarray(v, float) for v in (ax, flux, sigma))
+    cont = np.asarray(cont, float)
+    line_x, line_w = np.asarray(line_x, float), np.asarray(line_w, float)
+    out, bridged = cont.copy(), np.zeros(len(ax), bool)
+    ok = np.isfinite(line_x) & np.isfinite(line_w) & (line_w > 0)
+    if ok.sum() < 2 or len(ax) < 8:
+        return out, bridged
+    line_x, line_w = line_x[ok], line_w[ok]
+    ref = float(np.median(line_w))
+    reach_x = np.concatenate([line_x, np.asarray(feat_x, float)])
+    reach_w = np.concatenate([line_w, np.asarray(feat_w, float)])
+    fine = np.isfinite(reach_x) & np.isfinite(reach_w) & (reach_w > 0)
+    reach_x, reach_w = reach_x[fine], reach_w[fine]
+    for lo, hi, _ in _merge(line_x - CROWD_HALF_WIDTH * line_w, line_x + CROWD_HALF_WIDTH * line_w):
+        if hi - lo < CROWD_MIN_RUN * ref:
+            continue
+        a, b = np.searchsorted(ax, lo), np.searchsorted(ax, hi)
+        if a == 0 or b >= len(ax) or b - a < 2:     # at or beyond an end of the data
+            continue
+        # the crowd and as much again, at least 30 FWHM, on either side
+        side = max(hi - lo, 30 * ref)
+        a0, b0 = np.searchsorted(ax, lo - side), np.searchsorted(ax, hi + side)
+        seg = slice(a0, b0)
+        good = np.isfinite(flux[seg]) & np.isfinite(sigma[seg]) & (sigma[seg] > 0)
+        near = np.flatnonzero((reach_x + 2 * reach_w > ax[a0]) & (reach_x - 2 * reach_w < ax[b0 - 1]))
+        exclude = np.zeros(b0 - a0, bool)
+        for k in near:
+            i0 = np.searchsorted(ax, reach_x[k] - CROWD_HALF_WIDTH * reach_w[k]) - a0
+            i1 = np.searchsorted(ax, reach_x[k] + CROWD_HALF_WIDTH * reach_w[k]) - a0
+            exclude[max(i0, 0):max(i1, 0)] = True
+        clean = good & ~exclude
+        if not (clean[:a - a0].sum() >= 8 and clean[b - a0:].sum() >= 8):
+            continue
+        px_per_fwhm = (b - a) / (hi - lo) * ref
+        refit, _ = fit_continuum(np.where(good, flux[seg], 0.0), np.where(good, sigma[seg], np.inf),
+                                 good, knot_px=max(12 * px_per_fwhm, 8), exclude=exclude)
+        out[a:b] = refit[a - a0:b - a0]
+        bridged[a:b] = True
+    return out, bridged
 
 
 def choose_lines(line_x, line_group, line_n, primary, matched, feat_x, feat_w, feat_blend, s,

@@ -3,7 +3,9 @@
 import numpy as np
 import pytest
 
-from linefinder.forced import (BLOB_WIDTHS, N_BEYOND, choose_lines, fixed_profile_fit,
+from linefinder.continuum import fit_continuum
+from linefinder.forced import (BLOB_WIDTHS, N_BEYOND, bridge_crowded, choose_lines,
+                               fixed_profile_fit,
                                gaussian_templates, measure_predicted)
 
 W = 1e-4     # FWHM in ln wavelength (R = 10 000)
@@ -123,3 +125,57 @@ def test_choose_lines_needs_an_identified_line_in_the_series():
     cand, *_ = choose_lines(x, group, n, np.ones(len(x), bool), {0: 0}, [x[0] + 0.5], [W],
                             [False], 0.5, (x.min() + 0.49, x.max() + 0.51), 0.5 * W)
     assert set(group[cand]) == {"H I|Balmer"}
+
+
+def _balmer_ln(n):
+    # ln rest wavelength of H n -> 2 from the Rydberg formula with the reduced-mass
+    # Rydberg constant of hydrogen, R_H = 10 967 758.3 m^-1 (recalled from memory; NIST
+    # CODATA R_inf times m_p / (m_p + m_e)); fine structure does not matter here
+    return -np.log(10_967_758.3 * (0.25 - 1.0 / np.asarray(n, float) ** 2))
+
+
+def test_bridge_crowded_undoes_the_bend_of_a_spline_into_a_series_limit():
+    # a flat continuum with the Balmer series from H12 on in absorption at R = 5000: a spline
+    # fitted without knowing the lines (knots 12 FWHM apart, as before any line is found)
+    # bends into the crowd near the limit; refitted with the predicted lines left out, it
+    # is back at the truth there, within the noise of a continuum estimate
+    w = 2e-4
+    lx = _balmer_ln(np.arange(12, 41))
+    lw = np.full(len(lx), w)
+    ax = np.arange(lx.min() - 0.03, lx.max() + 0.03, w / 3)
+    truth = 10.0
+    clean = truth - 1.5 * gaussian_templates(ax, lx, lw).sum(axis=1)
+    sigma = np.full(len(ax), 0.3)
+    bent, off = [], []
+    for seed in range(6):
+        flux = clean + np.random.default_rng(seed).normal(0, 0.3, len(ax))
+        cont, _ = fit_continuum(flux, sigma, np.ones(len(ax), bool), knot_px=36)
+        bridged, where = bridge_crowded(ax, flux, sigma, cont, lx, lw)
+        # the crowd: from where neighbours stand closer than 3 FWHM (H24) to the limit
+        assert where[(ax > _balmer_ln(40)) & (ax < _balmer_ln(24))].all()
+        assert not where[ax > _balmer_ln(20)].any()
+        assert np.array_equal(bridged[~where], cont[~where])
+        bent.append(truth - cont[where].mean())
+        off.append(bridged[where].mean() - truth)
+    assert np.mean(bent) > 0.5                 # the spline did bend (else the test is moot)
+    assert np.max(np.abs(off)) < 0.25
+    assert np.sqrt(np.mean(np.square(off))) < 0.15
+
+
+def test_bridge_crowded_leaves_resolved_lines_and_spectrum_ends_alone():
+    w = 2e-4
+    ax = np.arange(0, 0.05, w / 3)
+    cont = 5.0 + np.sin(ax * 300)
+    flux, sigma = cont.copy(), np.ones(len(ax))
+    # lines 5 FWHM apart: no crowd
+    sparse = np.arange(0.01, 0.04, 5 * w)
+    out, where = bridge_crowded(ax, flux, sigma, cont, sparse, np.full(len(sparse), w))
+    assert not where.any() and np.array_equal(out, cont)
+    # a crowd running off the blue end of the data: no continuum beyond it to bridge from
+    crowd = np.arange(-0.002, 0.004, 0.5 * w)
+    out, where = bridge_crowded(ax, flux, sigma, cont, crowd, np.full(len(crowd), w))
+    assert not where.any() and np.array_equal(out, cont)
+    # a crowd wholly beyond the red end (predicted lines past the data)
+    crowd = np.arange(0.06, 0.07, 0.5 * w)
+    out, where = bridge_crowded(ax, flux, sigma, cont, crowd, np.full(len(crowd), w))
+    assert not where.any() and np.array_equal(out, cont)

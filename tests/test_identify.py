@@ -284,6 +284,25 @@ def test_series_members_the_search_missed_are_measured_at_z(seed, missed):
         assert abs(f["snr"][k] - line["snr"]) < max(2.5, 0.1 * line["snr"])
 
 
+def test_lines_near_a_series_limit_are_measured_on_a_bridged_continuum():
+    # a spectrum of the benchmark suite (invented data, seed 3 #121): a Balmer absorber at
+    # z = 0.387, R 3000, H20-H25 at true S/N 6-7 each, a FWHM or two apart and too weak to
+    # be found one by one.  The continuum fitted before z was known bent into them (by up
+    # to 1.6 sigma), and measured at z they fell below S/N 4.  With the continuum bridged
+    # over the crowd of predicted lines they are measured at about their true S/N
+    res, truth = _suite_spectrum(3, 121)
+    assert res.status == "secure" and _correct(res.z, truth["z"])
+    f = res.features
+    true = {l["label"]: l for l in truth["lines"]}
+    for name in ("H21", "H22", "H23", "H24"):
+        rows = [k for k in range(len(f)) if f["label"][k] == name]
+        assert len(rows) == 1, name
+        k, line = rows[0], true[name]
+        assert abs(np.log(f["center"][k].to_value(u.AA) / line["observed"])) < 0.2 * line["fwhm_ln"]
+        # the fit's own error is 1 in S/N; the bridged continuum's adds a little
+        assert abs(f["snr"][k] - line["snr"]) < 2.0, name
+
+
 def test_lines_beside_a_series_limit_trough_survive_a_failed_group_fit():
     # a spectrum of the benchmark suite (invented data, seed 3 #65): a Lyman-series absorber
     # at z = 5.74, R 34 000, S/N ~50 in its lines.  The merged members below the series
