@@ -87,6 +87,7 @@ def fit_groups(problems, *, try_voigt=True):
         comps, bg = _gauss_bucket([problems[k] for k in ks], ncomp, size)
         for j, k in enumerate(ks):
             out[k], background[k] = comps[j], bg[j]
+    _refit_without_runaways(problems, out, background)
     if try_voigt:
         for k, comps in enumerate(out):
             strong = any(abs(o["flux"]) > 20 * o["flux_err"] for o in comps
@@ -102,6 +103,44 @@ def fit_groups(problems, *, try_voigt=True):
                 if v is not None:
                     out[k] = v
     return out
+
+
+def _runaway(comp, x):
+    """A component that left its window or grew wider than it: its Gaussian is then a
+    constant or a slope over the data, which the linear term already is, and the group's
+    covariance is singular (a dip beside a saturated neighbour can run off this way)."""
+    lo, hi = float(np.min(x)), float(np.max(x))
+    return not (np.isfinite(comp["center"]) and lo <= comp["center"] <= hi
+                and comp["fwhm"] <= hi - lo)
+
+
+def _refit_without_runaways(problems, out, background):
+    """Refit, without them, the groups that hold a runaway component (`_runaway`), from the
+    other components' fitted values; the runaways are reported as failed fits.  Their
+    degeneracy with the linear term would otherwise leave every line of the group without
+    an error, and so unusable."""
+    todo, kept = [], []
+    for k, comps in enumerate(out):
+        if comps is None or background[k] is None:
+            continue
+        pr = problems[k]
+        keep = [i for i, c in enumerate(comps) if not _runaway(c, pr.x)]
+        if len(keep) == len(comps) or not keep:
+            continue
+        todo.append(k)
+        kept.append((keep, GroupProblem(
+            pr.x, pr.r, pr.sigma, [comps[i]["center"] for i in keep],
+            [comps[i]["fwhm"] / GAUSS_FWHM for i in keep], [comps[i]["amplitude"] for i in keep],
+            pr.min_sigma)))
+    if not todo:
+        return
+    refits = fit_groups([p for _, p in kept], try_voigt=False)
+    for k, (keep, _), fits in zip(todo, kept, refits):
+        comps = [_failed(float("nan")) for _ in out[k]]     # (a runaway has no place)
+        for i, f in zip(keep, fits):
+            comps[i] = f
+        out[k] = comps
+        background[k] = None       # (no Voigt refit from a partial fit)
 
 
 def _gauss_bucket(probs, ncomp, size):

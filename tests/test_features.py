@@ -44,6 +44,25 @@ def test_batched_fits_agree_with_scipy_curve_fit(rng):
             assert c["center_err"] == pytest.approx(perr[3 * k + 1] * scale, rel=1e-2)
 
 
+def test_a_component_that_runs_off_leaves_the_others_measured(rng):
+    # a line and a second component started far outside the window and wider than it (as a
+    # dip beside a saturated neighbour can end up): such a component is a constant or a
+    # slope over the data, degenerate with the linear term, and made the whole group's
+    # covariance singular.  It is reported as failed and the line is measured as if alone,
+    # which scipy.optimize.curve_fit (MINPACK), a reference library, checks
+    x = np.linspace(0, 60, 240)
+    one = lambda x_, a, m, s_, c0, c1: _two_gauss(x_, a, m, s_, 0.0, 0.0, 1.0, c0, c1)  # noqa: E731
+    y = one(x, 5.0, 31.0, 2.0, 0.4, 0.01) + rng.normal(0, 0.3, len(x))
+    pr = GroupProblem(x, y, np.full(len(x), 0.3), [30.5, 5e5], [2.2, 1e5], [4.0, 1.0], 0.1)
+    line, gone = fit_groups([pr], try_voigt=False)[0]
+    assert not gone["ok"] and not np.isfinite(gone["flux"])
+    p, cov = curve_fit(one, x, y, p0=[4.0, 30.5, 2.2, 0.0, 0.0], sigma=np.full(len(x), 0.3),
+                       absolute_sigma=True)
+    assert line["ok"] and line["center"] == pytest.approx(p[1], abs=1e-3 * np.sqrt(cov[1, 1]))
+    scale = max(line["chi2_red"], 1.0) ** 0.5
+    assert line["center_err"] == pytest.approx(np.sqrt(cov[1, 1]) * scale, rel=1e-2)
+
+
 def test_gaussian_line_measured(rng):
     # a known Gaussian emission line: centre, FWHM, flux and equivalent width within errors
     x = np.linspace(5000.0, 5100.0, 2001)
