@@ -250,6 +250,7 @@ def _colour_batches(ids, windows):
 
 
 BLEND_SEP = 1.5      # components closer than this many FWHM are flagged as a blend
+COINCIDENT = 0.5     # components of opposite sign closer than this many FWHM shape one line
 
 
 def _mark_blends(g):
@@ -594,25 +595,32 @@ def _merge_weak_blends(feats, x, r, sig, good, dx, n, fwhm_px, threshold):
     sign and comparable width, within `BLEND_SEP` FWHM of each other, are replaced
     by one component with their summed flux, flux-weighted centre and combined
     width, and refitted with their neighbours (the refit can leave a neighbouring
-    pair too uncertain in its turn: the caller repeats this).  Returns the new model
-    of all features, or None when nothing was merged."""
+    pair too uncertain in its turn: the caller repeats this).  A dip and a bump of
+    comparable width within `COINCIDENT` FWHM are merged too, from the stronger
+    one's centre and width.  Returns the new model of all features, or None when
+    nothing was merged."""
     def weak(f):
         fit = f.get("fit")
         if not fit or not np.isfinite(fit["center"]) or not np.isfinite(fit["flux"]):
             return False
-        return _usable(fit, x, dx, n, fwhm_px, threshold) is None and fit["flux_err"] > 0 \
-            and x[0] <= fit["center"] <= x[-1]
+        # a singular covariance (NaN errors: two components on one line, the extreme of
+        # a degenerate pair) counts as too uncertain as well
+        err = fit["flux_err"]
+        return _usable(fit, x, dx, n, fwhm_px, threshold) is None and \
+            (err > 0 or not np.isfinite(err)) and x[0] <= fit["center"] <= x[-1]
     cands = sorted((f for f in feats if weak(f)), key=lambda f: f["fit"]["center"])
     runs, run = [], []
     for f in cands:
         if run:
             p = run[-1]["fit"]
             q = f["fit"]
-            # of one sign, comparable widths (a broad trough's component is no part of a
-            # line), within BLEND_SEP of the narrower: no chains along a series limit
+            # comparable widths (a broad trough's component is no part of a line); of one
+            # sign within BLEND_SEP of the narrower (no chains along a series limit), or of
+            # opposite signs on one spot (a dip and a bump whose difference shapes one
+            # line that is not Gaussian)
             narrow, wide = sorted((p["fwhm"], q["fwhm"]))
-            if np.sign(p["flux"]) == np.sign(q["flux"]) and wide < 2.5 * narrow and \
-                    q["center"] - p["center"] < BLEND_SEP * narrow:
+            reach = BLEND_SEP if np.sign(p["flux"]) == np.sign(q["flux"]) else COINCIDENT
+            if wide < 2.5 * narrow and q["center"] - p["center"] < reach * narrow:
                 run.append(f)
                 continue
             if len(run) >= 2:
@@ -627,9 +635,14 @@ def _merge_weak_blends(feats, x, r, sig, good, dx, n, fwhm_px, threshold):
         flux = np.array([f["fit"]["flux"] for f in run])
         c = np.array([f["fit"]["center"] for f in run])
         s2 = np.array([f["fit"]["fwhm"] / GAUSS_FWHM for f in run]) ** 2
-        wgt = flux / flux.sum()
-        centre = float(np.sum(wgt * c))
-        width = float(np.sqrt(np.sum(wgt * (s2 + (c - centre) ** 2)))) * GAUSS_FWHM
+        if np.all(np.sign(flux) == np.sign(flux[0])):
+            wgt = flux / flux.sum()
+            centre = float(np.sum(wgt * c))
+            width = float(np.sqrt(np.sum(wgt * (s2 + (c - centre) ** 2)))) * GAUSS_FWHM
+        else:
+            # mixed signs: the strongest component's place and width start the refit
+            k = int(np.argmax(np.abs(flux)))
+            centre, width = float(c[k]), float(np.sqrt(s2[k])) * GAUSS_FWHM
         px = int(np.clip(np.searchsorted(x, centre), 0, n - 1))
         width_px = max(width / max(dx[px], 1e-300), 1.0)
         amp = float(flux.sum() / (width / GAUSS_FWHM * np.sqrt(2 * np.pi)))
