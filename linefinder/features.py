@@ -639,13 +639,16 @@ def _merge_weak_blends(feats, x, r, sig, good, dx, n, fwhm_px, threshold):
             wgt = flux / flux.sum()
             centre = float(np.sum(wgt * c))
             width = float(np.sqrt(np.sum(wgt * (s2 + (c - centre) ** 2)))) * GAUSS_FWHM
+            amp = float(flux.sum() / (width / GAUSS_FWHM * np.sqrt(2 * np.pi)))
         else:
-            # mixed signs: the strongest component's place and width start the refit
+            # mixed signs (a dip and a bump nearly cancelling, their sum a narrow core with
+            # shoulders): the refit starts at the strongest one's place, with the narrowest
+            # width and the depth of the sum there (their net flux can be near nothing)
             k = int(np.argmax(np.abs(flux)))
-            centre, width = float(c[k]), float(np.sqrt(s2[k])) * GAUSS_FWHM
+            centre, width = float(c[k]), float(np.sqrt(s2.min())) * GAUSS_FWHM
+            amp = float(np.sum(flux / np.sqrt(2 * np.pi * s2) * np.exp(-0.5 * (centre - c) ** 2 / s2)))
         px = int(np.clip(np.searchsorted(x, centre), 0, n - 1))
         width_px = max(width / max(dx[px], 1e-300), 1.0)
-        amp = float(flux.sum() / (width / GAUSS_FWHM * np.sqrt(2 * np.pi)))
         one = {"px": px, "fwhm_px": width_px, "snr_det": max(f["snr_det"] for f in run),
                "amp0": amp, "fit": None, "group": 1}
         for f in run:
