@@ -38,7 +38,7 @@ from .expected_strengths import (expected_strengths, is_primary, multiplet_codes
 from .feature_table import append_at_z, fill, new_table, peaks_as_features
 from .line_lists import read_line_list
 from .lyman_break import GAP_FWHM, WINDOW_LN, continuum_step, is_break, mean_transmission
-from .matching import assign
+from .matching import assign, withdraw_unsupported
 from .medium import air_to_vacuum
 from .redshift import _within, classify, refine, search_shift, solution_probability
 from .single_line import READING_STRENGTH, single_line_readings
@@ -303,6 +303,12 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
         res.score = res.score * (1.0 if z is not None else solution_probability(sols))
         _primary_in_blends(out, idx, res, y[idx], sy[idx], fwhm_feat[idx], best_s, x,
                            line_weight < 1)
+        # a secondary species is named only where its stronger lines are not missing
+        withdraw_unsupported(res, y[idx], snr_arr[idx], x_all,
+                             np.concatenate([strength, st_comp, np.ones(len(x_user))]), group_all,
+                             best_s, window, 1.0 / R,
+                             np.concatenate([line_weight < 1, np.zeros(nc + len(x_user), bool)]),
+                             detection_snr=snr)
         fill(out, idx, res, cat, y[idx], best_s, other)
     elif extra_lines and len(feats):
         # no hydrogenic solution: the user's lines are still matched at the rest frame (or z)

@@ -28,7 +28,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import linear_sum_assignment
 
-__all__ = ["assign", "Assignment", "candidate_pairs", "NULL_LOG_LIKELIHOOD", "CASE_B_HBETA"]
+__all__ = ["assign", "Assignment", "candidate_pairs", "withdraw_unsupported", "NULL_LOG_LIKELIHOOD",
+           "CASE_B_HBETA"]
 
 NULL_LOG_LIKELIHOOD = -4.5
 TOL = 4.0
@@ -289,3 +290,56 @@ def _intensity_prior(choice, flux, strength, gcode, rows, cols):
     use = np.isfinite(dev)
     prior[use] = np.maximum(-0.5 * dev[use] ** 2, -8.0)
     return prior, sc
+
+
+def withdraw_unsupported(res, y, snr, x, strength, group, s, window, fwhm_ln, claimable, *,
+                         detection_snr=DETECTION_SNR):
+    """Take back the identifications of a species and series whose stronger lines are absent.
+
+    For every group (species and series) of the `claimable` lines that `res` assigned
+    features to, the matched features' S/N per unit expected strength (their median)
+    predicts the S/N of the group's other lines in the `window` (ln observed
+    wavelength, 2 FWHM `fwhm_ln` inside its ends).  A line predicted at twice the
+    detection limit or more with no feature within a FWHM of it, and no line of its
+    own group within two (a series running into its limit is no single line), says
+    the group is not there: its features are left unidentified.  A claimed He II 917
+    in a Lyman absorber whose He II 958 and 992 would be far stronger, and are not
+    seen, is a feature of something else.  `res` is changed in place; returns the
+    indices of the features taken back.
+    """
+    y, snr, x = (np.asarray(v, dtype=float) for v in (y, snr, x))
+    strength, group = np.asarray(strength, dtype=float), np.asarray(group)
+    claimable = np.asarray(claimable, dtype=bool)
+    took = []
+    if window is None or not len(y):
+        return took
+    j_all = np.asarray(res.best)
+    lo, hi = window[0] + 2 * fwhm_ln, window[1] - 2 * fwhm_ln
+    ys = np.sort(y)
+    for g in np.unique(group[j_all[j_all >= 0]]):
+        feats = np.flatnonzero((j_all >= 0) & (group[np.maximum(j_all, 0)] == g))
+        lines = j_all[feats]
+        if not claimable[lines].all():
+            continue
+        ok = (strength[lines] > 0) & np.isfinite(snr[feats]) & (snr[feats] > 0)
+        if not ok.any():
+            continue
+        per_unit = float(np.median(snr[feats][ok] / strength[lines][ok]))
+        mine = np.flatnonzero(group == g)
+        xo = x[mine] + s
+        order = np.argsort(xo)
+        mine, xo = mine[order], xo[order]
+        gap = np.diff(xo)
+        crowded = np.minimum(np.concatenate([[np.inf], gap]), np.concatenate([gap, [np.inf]])) \
+            < 2 * fwhm_ln
+        k = np.searchsorted(ys, xo)
+        near = np.minimum(np.abs(ys[np.maximum(k - 1, 0)] - xo),
+                          np.abs(ys[np.minimum(k, len(ys) - 1)] - xo))     # nearest feature
+        absent = (xo > lo) & (xo < hi) & ~crowded & (near > fwhm_ln) \
+            & (per_unit * strength[mine] >= 2 * detection_snr) & ~np.isin(mine, lines)
+        if absent.any():
+            res.best[feats] = -1
+            res.score[feats] = 0.0
+            res.resid[feats] = np.nan
+            took.extend(feats.tolist())
+    return sorted(took)

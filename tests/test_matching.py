@@ -123,3 +123,46 @@ def test_masked_feature_is_named_only_where_a_line_must_be():
     # without the S/N nothing predicts the masked lines: neither is named
     blind = assign(*args, masked=np.array([False, False, True, True]))
     assert list(blind.best) == [0, 1, -1, -1]
+
+
+def _he_ii_balmer(n_up):
+    # He II n -> 2 lines: the catalogue's vacuum wavelengths and absorption strengths
+    # (flat curve of growth), the lines a Lyman absorber's He II would show
+    from linefinder.catalogue import build_catalogue
+    from linefinder.expected_strengths import expected_strengths
+
+    cat = build_catalogue("He II", 2, (3, n_up), resolution=20000)
+    strength, group = expected_strengths(cat, "absorption")
+    return np.log(cat["wavelength_vacuum"].to_value("m")), strength, group, cat
+
+
+@pytest.mark.parametrize("stronger_seen, claimed", [(False, False), (True, True)])
+def test_secondary_species_is_named_only_with_its_stronger_lines(stronger_seen, claimed):
+    # a feature on He II 917 (n = 21 -> 2) at S/N 7 in a window that also holds He II 958.7
+    # and 992.4 (n = 9, 7 -> 2), which the catalogue's f-values on a flat curve of growth
+    # predict at S/N 15 or more: with no feature there, the He II label is taken back
+    from linefinder.matching import withdraw_unsupported
+
+    x, strength, group, cat = _he_ii_balmer(30)
+    n_up = np.asarray(cat["n_upper"])
+    s, fwhm = np.log(6.0), 1 / 20000
+    target = int(np.flatnonzero(n_up == 21)[0])
+    strong = [int(np.flatnonzero(n_up == n)[0]) for n in (7, 9)]
+    # seen: the whole series from He II 1640 down to the claimed line
+    below = [int(j) for j in np.flatnonzero(n_up < 21)]
+    feats = [target] + (below if stronger_seen else [])
+    y = x[feats] + s
+    snr = np.array([7.0] + [7.0 * strength[j] / strength[target] for j in feats[1:]])
+    assert snr[0] * strength[strong].min() / strength[target] >= 15     # (as stated)
+    res = assign(y, np.full(len(y), 1e-5), np.full(len(y), np.nan), np.zeros(len(y), bool), x,
+                 strength, group, s)
+    assert res.best[0] == target                       # matched before the check
+    window = (x.min() + s - 0.01, x.max() + s + 0.01)
+    took = withdraw_unsupported(res, y, snr, x, strength, group, s, window, fwhm,
+                                np.ones(len(x), bool))
+    assert (res.best[0] == target) == claimed and (0 in took) != claimed
+    # lines of the primary species (not claimable) are never taken back
+    res = assign(y, np.full(len(y), 1e-5), np.full(len(y), np.nan), np.zeros(len(y), bool), x,
+                 strength, group, s)
+    assert withdraw_unsupported(res, y, snr, x, strength, group, s, window, fwhm,
+                                np.zeros(len(x), bool)) == []
