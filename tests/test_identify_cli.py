@@ -188,3 +188,45 @@ def test_lines_measured_at_z_are_marked_in_the_report(tmp_path, capsys):
     assert all(f["label"] in summary["lines"] for f in at_z)
     assert text.count("at z") >= len(at_z)
     assert "at_z" in (out / "report.html").read_text()
+
+
+def _truth(name):
+    return json.loads(sample_path(name + ".truth.json").read_text())
+
+
+def _labelled_at(features, line, tol):
+    """Is the truth `line` labelled with its name by a feature within `tol` of it?"""
+    return any(f["label"] == line["label"] and abs(f["center"] - line["observed"]) < tol
+               for f in features)
+
+
+def test_hot_star_sample_velocity_and_balmer_lines(capsys):
+    # the sample's ground truth (invented scenario): a hot star at +37.5 km/s (optical
+    # convention), Stark-broadened Balmer absorption H11 ... Hβ at R 5000, in air
+    truth = _truth("hot_star.fits")
+    assert main(["identify", str(sample_path("hot_star.fits")), "--format", "json"]) == 0
+    res = json.loads(capsys.readouterr().out)
+    assert res["status"] == "secure"
+    v_err = 299792.458 * res["z_err"]
+    assert res["velocity_kms"] == pytest.approx(truth["velocity_kms"], abs=3 * v_err)
+    # H8 ... Hβ stand clear of the spectrum's blue end (H9-H11 crowd it, in their wings)
+    for line in truth["lines"]:
+        if line["species"] == "H I" and line["n_upper"] <= 8:
+            assert _labelled_at(res["features"], line, 1.0), line["label"]
+
+
+def test_hd_discharge_sample_names_both_isotopes(capsys):
+    # the sample's ground truth (invented scenario): an H/D discharge at rest, Hα/Dα and
+    # Hβ/Dβ resolved (isotope shift 0.18 and 0.13 nm), and a C II 657.8 nm impurity line
+    # that must stay unidentified among the hydrogenic lines
+    truth = _truth("hd_discharge.csv")
+    assert main(["identify", str(sample_path("hd_discharge.csv")), "--species", "H", "D",
+                 "--zmax", "0.001", "--format", "json"]) == 0
+    res = json.loads(capsys.readouterr().out)
+    assert res["status"] == "secure" and abs(res["z"]) < 3 * res["z_err"] + 1e-6
+    for line in truth["lines"]:
+        if line["species"] in ("H I", "D I"):
+            assert _labelled_at(res["features"], line, 0.01), line["label"]
+    other = [l for l in truth["lines"] if l["species"] == "other"]
+    assert other and all(any(abs(u["center"] - l["observed"]) < 0.01 for u in res["unidentified"])
+                         for l in other)
