@@ -304,11 +304,13 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
         _primary_in_blends(out, idx, res, y[idx], sy[idx], fwhm_feat[idx], best_s, x,
                            line_weight < 1)
         # a secondary species is named only where its stronger lines are not missing
+        pixels = _sorted_pixels(feature_result) if feature_result is not None else None
         withdraw_unsupported(res, y[idx], snr_arr[idx], x_all,
                              np.concatenate([strength, st_comp, np.ones(len(x_user))]), group_all,
                              best_s, window, 1.0 / R,
                              np.concatenate([line_weight < 1, np.zeros(nc + len(x_user), bool)]),
-                             detection_snr=snr)
+                             detection_snr=snr,
+                             pixels=None if pixels is None else pixels[0][np.isfinite(pixels[1])])
         fill(out, idx, res, cat, y[idx], best_s, other)
     elif extra_lines and len(feats):
         # no hydrogenic solution: the user's lines are still matched at the rest frame (or z)
@@ -344,7 +346,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     if feature_result is not None and best_s is not None and len(cat) and len(feats) and \
             (status == "secure" or z is not None):
         out = append_at_z(out, res.best, cat, x, group, line_weight >= 1, best_s,
-                          sols[0].s_err if sols else 0.0, _sorted_pixels(feature_result), y, fwhm_feat,
+                          sols[0].s_err if sols else 0.0, pixels, y, fwhm_feat,
                            main_kind, window, R, medium, mask_sky and not is_freq_axis,
                            1.0 if z is not None else solution_probability(sols))
     result = Identification(features=out, status=status, solutions=sols, lines=cat,

@@ -293,7 +293,7 @@ def _intensity_prior(choice, flux, strength, gcode, rows, cols):
 
 
 def withdraw_unsupported(res, y, snr, x, strength, group, s, window, fwhm_ln, claimable, *,
-                         detection_snr=DETECTION_SNR):
+                         detection_snr=DETECTION_SNR, pixels=None):
     """Take back the identifications of a species and series whose stronger lines are absent.
 
     For every group (species and series) of the `claimable` lines that `res` assigned
@@ -304,7 +304,9 @@ def withdraw_unsupported(res, y, snr, x, strength, group, s, window, fwhm_ln, cl
     own group within two (a series running into its limit is no single line), says
     the group is not there: its features are left unidentified.  A claimed He II 917
     in a Lyman absorber whose He II 958 and 992 would be far stronger, and are not
-    seen, is a feature of something else.  `res` is changed in place; returns the
+    seen, is a feature of something else.  With `pixels` (sorted ln observed wavelengths
+    of the valid pixels) a line counts only where the data cover it: a gap between
+    windows or a masked stretch says nothing.  `res` is changed in place; returns the
     indices of the features taken back.
     """
     y, snr, x = (np.asarray(v, dtype=float) for v in (y, snr, x))
@@ -332,14 +334,23 @@ def withdraw_unsupported(res, y, snr, x, strength, group, s, window, fwhm_ln, cl
         gap = np.diff(xo)
         crowded = np.minimum(np.concatenate([[np.inf], gap]), np.concatenate([gap, [np.inf]])) \
             < 2 * fwhm_ln
-        k = np.searchsorted(ys, xo)
-        near = np.minimum(np.abs(ys[np.maximum(k - 1, 0)] - xo),
-                          np.abs(ys[np.minimum(k, len(ys) - 1)] - xo))     # nearest feature
-        absent = (xo > lo) & (xo < hi) & ~crowded & (near > fwhm_ln) \
+        absent = (xo > lo) & (xo < hi) & ~crowded & (_nearest_gap(ys, xo) > fwhm_ln) \
             & (per_unit * strength[mine] >= 2 * detection_snr) & ~np.isin(mine, lines)
+        if pixels is not None:
+            absent &= _nearest_gap(pixels, xo) <= fwhm_ln
         if absent.any():
             res.best[feats] = -1
             res.score[feats] = 0.0
             res.resid[feats] = np.nan
             took.extend(feats.tolist())
     return sorted(took)
+
+
+def _nearest_gap(sorted_vals, x):
+    """Distance from each x to the nearest of `sorted_vals` (inf where there are none)."""
+    sorted_vals = np.asarray(sorted_vals, dtype=float)
+    if not len(sorted_vals):
+        return np.full(len(x), np.inf)
+    k = np.searchsorted(sorted_vals, x)
+    return np.minimum(np.abs(sorted_vals[np.maximum(k - 1, 0)] - x),
+                      np.abs(sorted_vals[np.minimum(k, len(sorted_vals) - 1)] - x))
