@@ -596,8 +596,8 @@ def _merge_weak_blends(feats, x, r, sig, good, dx, n, fwhm_px, threshold):
     by one component with their summed flux, flux-weighted centre and combined
     width, and refitted with their neighbours (the refit can leave a neighbouring
     pair too uncertain in its turn: the caller repeats this).  A dip and a bump of
-    comparable width within `COINCIDENT` FWHM are merged too, from the stronger
-    one's centre and width.  Returns the new model of all features, or None when
+    comparable width within `COINCIDENT` FWHM are merged too, starting from the
+    stronger one's centre, the narrower width and the depth of their sum.  Returns the new model of all features, or None when
     nothing was merged."""
     def weak(f):
         fit = f.get("fit")

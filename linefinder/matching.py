@@ -28,6 +28,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import linear_sum_assignment
 
+from .redshift import _within
+
 __all__ = ["assign", "Assignment", "candidate_pairs", "withdraw_unsupported", "NULL_LOG_LIKELIHOOD",
            "CASE_B_HBETA"]
 
@@ -334,10 +336,10 @@ def withdraw_unsupported(res, y, snr, x, strength, group, s, window, fwhm_ln, cl
         gap = np.diff(xo)
         crowded = np.minimum(np.concatenate([[np.inf], gap]), np.concatenate([gap, [np.inf]])) \
             < 2 * fwhm_ln
-        absent = (xo > lo) & (xo < hi) & ~crowded & (_nearest_gap(ys, xo) > fwhm_ln) \
+        absent = (xo > lo) & (xo < hi) & ~crowded & ~_within(ys, xo, fwhm_ln) \
             & (per_unit * strength[mine] >= 2 * detection_snr) & ~np.isin(mine, lines)
         if pixels is not None:
-            absent &= _nearest_gap(pixels, xo) <= fwhm_ln
+            absent &= _within(np.asarray(pixels, dtype=float), xo, fwhm_ln)
         if absent.any():
             res.best[feats] = -1
             res.score[feats] = 0.0
@@ -345,12 +347,3 @@ def withdraw_unsupported(res, y, snr, x, strength, group, s, window, fwhm_ln, cl
             took.extend(feats.tolist())
     return sorted(took)
 
-
-def _nearest_gap(sorted_vals, x):
-    """Distance from each x to the nearest of `sorted_vals` (inf where there are none)."""
-    sorted_vals = np.asarray(sorted_vals, dtype=float)
-    if not len(sorted_vals):
-        return np.full(len(x), np.inf)
-    k = np.searchsorted(sorted_vals, x)
-    return np.minimum(np.abs(sorted_vals[np.maximum(k - 1, 0)] - x),
-                      np.abs(sorted_vals[np.minimum(k, len(sorted_vals) - 1)] - x))
