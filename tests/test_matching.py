@@ -154,8 +154,11 @@ def test_secondary_species_is_named_only_with_its_stronger_lines(stronger_seen, 
     y = x[feats] + s
     snr = np.array([7.0] + [7.0 * strength[j] / strength[target] for j in feats[1:]])
     assert snr[0] * strength[strong].min() / strength[target] >= 15     # (as stated)
-    res = assign(y, np.full(len(y), 1e-5), np.full(len(y), np.nan), np.zeros(len(y), bool), x,
-                 strength, group, s)
+    def matched():
+        return assign(y, np.full(len(y), 1e-5), np.full(len(y), np.nan), np.zeros(len(y), bool),
+                      x, strength, group, s)
+
+    res = matched()
     assert res.best[0] == target                       # matched before the check
     window = (x.min() + s - 0.01, x.max() + s + 0.01)
     took = withdraw_unsupported(res, y, snr, x, strength, group, s, window, fwhm,
@@ -163,13 +166,9 @@ def test_secondary_species_is_named_only_with_its_stronger_lines(stronger_seen, 
     assert (res.best[0] == target) == claimed and (0 in took) != claimed
     # data covering only the claimed line's neighbourhood (the stronger lines in a gap
     # between windows): their absence says nothing, and the label stays
-    res = assign(y, np.full(len(y), 1e-5), np.full(len(y), np.nan), np.zeros(len(y), bool), x,
-                 strength, group, s)
     pixels = np.arange(y[0] - 0.003, y[0] + 0.003, fwhm / 3)
-    assert withdraw_unsupported(res, y, snr, x, strength, group, s, window, fwhm,
+    assert withdraw_unsupported(matched(), y, snr, x, strength, group, s, window, fwhm,
                                 np.ones(len(x), bool), pixels=pixels) == []
     # lines of the primary species (not claimable) are never taken back
-    res = assign(y, np.full(len(y), 1e-5), np.full(len(y), np.nan), np.zeros(len(y), bool), x,
-                 strength, group, s)
-    assert withdraw_unsupported(res, y, snr, x, strength, group, s, window, fwhm,
+    assert withdraw_unsupported(matched(), y, snr, x, strength, group, s, window, fwhm,
                                 np.zeros(len(x), bool)) == []
