@@ -27,13 +27,13 @@ def main():
     import pandas as pd
 
     from linefinder import build_catalogue
-    import linefinder.medium as medium
+    import linefinder.spectral.medium as medium
     import astropy.units as u
 
     medium.refractive_index([500.0] * u.nm)   # pulls in specutils once
     print(f"import (linefinder + specutils + pandas): {time.perf_counter() - t0:.3f} s")
 
-    from linefinder.memo import clear_all
+    from linefinder.physics.memo import clear_all
 
     species = ["H", "D", "T", "He II"]
     args = (species, (1, 10), (2, 1000))
@@ -57,7 +57,7 @@ def main():
 
     pos_best, _ = _best(lambda: cold(a_values=False))   # best of 5, as the CSV read
     csv_path = os.path.join(tmp, "lines.csv")
-    from linefinder.cli_catalogue import flatten_lines
+    from linefinder.cli.catalogue import flatten_lines
 
     flatten_lines(table, u.nm).to_pandas().to_csv(csv_path, index=False)
     csv_best, _ = _best(lambda: pd.read_csv(csv_path))

@@ -26,8 +26,8 @@ from astropy import units as u
 def _lines_spectrum(rng, n_pix, n_lines, R, snr_range=(5, 100), absorption_fraction=0.3,
                     min_sep_fwhm=4.0):
     """A log-linear spectrum with isolated Gaussian lines of known S/N (invented)."""
-    from linefinder.profiles import GAUSS_FWHM
-    from linefinder.spectrum import SpectrumData
+    from linefinder.features.profiles import GAUSS_FWHM
+    from linefinder.spectral.spectrum import SpectrumData
 
     dlog = 1 / (2.5 * R)
     lam = 4000.0 * np.exp(dlog * np.arange(n_pix))
@@ -55,8 +55,8 @@ def _lines_spectrum(rng, n_pix, n_lines, R, snr_range=(5, 100), absorption_fract
 def speed(rng):
     from astropy.io import fits
 
-    from linefinder.features import find_features
-    from linefinder.readers import read_input
+    from linefinder.features.detect import find_features
+    from linefinder.io.read import read_input
 
     spec, truth, lam = _lines_spectrum(rng, 4000, 30, 3000.0)
     folder = tempfile.mkdtemp(prefix="linefinder-bench-")
@@ -86,7 +86,7 @@ def speed(rng):
 
 
 def big(rng, n_pix):
-    from linefinder.features import find_features
+    from linefinder.features.detect import find_features
 
     spec, truth, lam = _lines_spectrum(rng, n_pix, n_pix // 500, 40000.0)
     data_bytes = spec.axis.nbytes + spec.flux.nbytes + spec.uncertainty.nbytes
@@ -104,7 +104,7 @@ def big(rng, n_pix):
 
 
 def accuracy(rng, n_spectra):
-    from linefinder.features import find_features
+    from linefinder.features.detect import find_features
 
     rows = []
     pulls = []
@@ -137,8 +137,8 @@ def accuracy(rng, n_spectra):
 
 
 def noise(rng, total_pix):
-    from linefinder.features import find_features
-    from linefinder.spectrum import SpectrumData
+    from linefinder.features.detect import find_features
+    from linefinder.spectral.spectrum import SpectrumData
 
     n_det = 0
     done = 0

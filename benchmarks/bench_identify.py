@@ -4,7 +4,7 @@ Run:  python benchmarks/bench_identify.py [--n 600] [--noise 100] [--jobs 2] [--
       python benchmarks/bench_identify.py --speed-only
 
 identify runs with its defaults (companion lines on) plus the sky mask
-(--mask-sky), as for ground-based data.  The suite (linefinder.synthetic, invented data): z uniform in 0-7, peak S/N
+(--mask-sky), as for ground-based data.  The suite (linefinder.simulate.suite, invented data): z uniform in 0-7, peak S/N
 log-uniform 3-100, R log-uniform 500-50 000, 70 % emission / 30 % absorption,
 each spectrum covering a factor 2.8 in wavelength (3500-9800 Å say: a survey
 spectrograph or a merged echelle; --max-pixels 6000 narrows high-R windows),
@@ -39,8 +39,8 @@ import numpy as np
 
 def _run_one(args):
     seed, index, noise, max_pixels = args
-    from linefinder.identify import identify
-    from linefinder.synthetic import make_noise_spectrum, make_spectrum, random_parameters
+    from linefinder.identification.pipeline import identify
+    from linefinder.simulate.suite import make_noise_spectrum, make_spectrum, random_parameters
 
     rng = np.random.default_rng([seed, index, int(noise)])
     if noise:
@@ -218,9 +218,9 @@ def evaluate(results):
 
 def speed():
     """identify on a 4000-pixel spectrum; matching 1e5 features against 1e6 lines."""
-    from linefinder.identify import identify
-    from linefinder.matching import assign
-    from linefinder.synthetic import make_spectrum
+    from linefinder.identification.pipeline import identify
+    from linefinder.identification.matching import assign
+    from linefinder.simulate.suite import make_spectrum
 
     rng = np.random.default_rng(7)
     # R chosen so that the window holds ~4000 pixels
@@ -235,7 +235,7 @@ def speed():
         t0 = time.perf_counter()
         res = identify(spec)
         times.append(time.perf_counter() - t0)
-    from linefinder.features import find_features
+    from linefinder.features.detect import find_features
 
     ftimes = []
     for _ in range(5):

@@ -1,14 +1,30 @@
 """linefinder: identify hydrogen and hydrogen-like spectral lines.
 
-The catalogue side is importable without matplotlib or the spectrum readers:
+The main verbs:
 
->>> from linefinder import build_catalogue
->>> t = build_catalogue("H", 2, (3, 6), medium="air")
+>>> import linefinder as lf
+>>> t = lf.build_catalogue("H", 2, (3, 6), medium="air")     # Balmer lines from theory
+>>> result = lf.identify("spectrum.fits")                    # doctest: +SKIP
+>>> result.status, result.z                                  # doctest: +SKIP
+
+`identify` and `find_features` take a file path, a ``specutils.Spectrum`` or
+arrays with units; `read_spectrum` reads a file; `write_report` writes the
+tables, plots and HTML page of an identification; `level_table` lists the
+energy levels of a species.  The subpackages hold the parts: `physics`,
+`catalogue`, `spectral`, `io`, `features`, `identification`, `report`,
+`simulate`, `cli`.
 """
 
 from ._version import __version__
-from .catalogue import build_catalogue, cache_dir
-from .levels import level_table
-from .species import Species, parse_species
+from .api import as_spectrum, find_features, identify, read_spectrum
+from .catalogue.build import build_catalogue, cache_dir
+from .features.detect import FeatureResult
+from .identification.pipeline import Identification
+from .physics.levels import level_table
+from .physics.species import Species, parse_species
+from .report.summary import write_report
+from .spectral.spectrum import SpectrumData
 
-__all__ = ["__version__", "build_catalogue", "cache_dir", "level_table", "parse_species", "Species"]
+__all__ = ["__version__", "identify", "find_features", "read_spectrum", "as_spectrum",
+           "build_catalogue", "cache_dir", "level_table", "write_report", "parse_species",
+           "Species", "SpectrumData", "FeatureResult", "Identification"]

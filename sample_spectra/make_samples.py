@@ -2,17 +2,17 @@
 
     python sample_spectra/make_samples.py
 
-writes every sample and its ground truth into sample_spectra/ and the same
-files into linefinder/data/samples/ (what an installed linefinder ships).
+writes every sample and its ground truth into linefinder/data/samples/, the
+one copy that an installed linefinder ships (`linefinder.simulate.scenarios`
+says what each scenario is).
 """
 
 from pathlib import Path
 
-from linefinder.samples import write_samples
+from linefinder.simulate.scenarios import write_samples
 
-HERE = Path(__file__).resolve().parent
+PACKAGE_SAMPLES = Path(__file__).resolve().parent.parent / "linefinder" / "data" / "samples"
 
 if __name__ == "__main__":
-    for folder in (HERE, HERE.parent / "linefinder" / "data" / "samples"):
-        for path in write_samples(folder):
-            print(f"wrote {path} ({path.stat().st_size / 1024:.0f} KiB)")
+    for path in write_samples(PACKAGE_SAMPLES):
+        print(f"wrote {path} ({path.stat().st_size / 1024:.0f} KiB)")

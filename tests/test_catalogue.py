@@ -7,7 +7,7 @@ import pytest
 from astropy import units as u
 
 from linefinder import build_catalogue, cache_dir
-from linefinder.catalogue import parse_range
+from linefinder.catalogue.build import parse_range
 from linefinder.errors import AccuracyWarning, QuantumNumberError
 
 # Standard air wavelengths of the hydrogen multiplets in Å, as tabulated for

@@ -6,7 +6,7 @@ import io
 import pytest
 from astropy.table import Table
 
-from linefinder.cli import main
+from linefinder.cli.main import main
 
 LINES_COLUMNS = ("species,label,series,n_lower,l_lower,j_lower,n_upper,l_upper,j_upper,"
                  "wavelength_vacuum_nm,wavelength_air_nm,wavenumber_cm-1,frequency_hz,energy_ev,"

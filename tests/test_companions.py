@@ -4,12 +4,12 @@ import numpy as np
 import pytest
 from astropy import units as u
 
-from linefinder.catalogue import build_catalogue
-from linefinder.companions import COMPANION_LINES, companion_lines
-from linefinder.identify import identify
-from linefinder.medium import vacuum_to_air
-from linefinder.report import summary
-from linefinder.spectrum import SpectrumData
+from linefinder.catalogue.build import build_catalogue
+from linefinder.catalogue.companions import COMPANION_LINES, companion_lines
+from linefinder.identification.pipeline import identify
+from linefinder.spectral.medium import vacuum_to_air
+from linefinder.report.summary import summary
+from linefinder.spectral.spectrum import SpectrumData
 
 # Standard air wavelengths (Å) of the strong nebular lines as tabulated for nebular work
 # (Osterbrock & Ferland 2006, Astrophysics of Gaseous Nebulae and AGN; from memory, to the
@@ -114,7 +114,7 @@ def test_companions_alone_give_no_redshift(rng):
 def test_redshift_command_names_companions_and_turns_them_off(rng, tmp_path, capsys):
     import json
 
-    from linefinder.cli import main
+    from linefinder.cli.main import main
 
     spec = _lone_hbeta_with_oiii(rng)
     path = tmp_path / "hbeta_oiii.csv"

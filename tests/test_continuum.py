@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from linefinder.continuum import _UniformSpline, fit_continuum
+from linefinder.features.continuum import _UniformSpline, fit_continuum
 
 
 def test_spline_matches_scipy_least_squares(rng):
@@ -62,8 +62,8 @@ def test_lines_found_along_a_long_log_linear_grid(rng):
     # judged in local pixels, or blue-end lines look like one-pixel spikes
     from astropy import units as u
 
-    from linefinder.features import find_features
-    from linefinder.spectrum import SpectrumData
+    from linefinder.features.detect import find_features
+    from linefinder.spectral.spectrum import SpectrumData
 
     R, n = 1000.0, 5000
     dlog = 1 / (2.5 * R)

@@ -3,8 +3,8 @@
 import numpy as np
 from astropy import units as u
 
-from linefinder.catalogue import build_catalogue
-from linefinder.expected_strengths import expected_strengths, multiplet_codes, strength_assumption
+from linefinder.catalogue.build import build_catalogue
+from linefinder.catalogue.strengths import expected_strengths, multiplet_codes, strength_assumption
 
 
 def _row(cat, label):

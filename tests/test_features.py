@@ -6,10 +6,10 @@ from astropy import units as u
 from scipy.optimize import curve_fit
 from scipy.special import voigt_profile
 
-from linefinder.features import find_features
-from linefinder.profiles import GAUSS_FWHM, GroupProblem, fit_groups
-from linefinder.redshift import weighted_shift
-from linefinder.spectrum import SpectrumData
+from linefinder.features.detect import find_features
+from linefinder.features.profiles import GAUSS_FWHM, GroupProblem, fit_groups
+from linefinder.identification.redshift import weighted_shift
+from linefinder.spectral.spectrum import SpectrumData
 
 
 def _two_gauss(x, a1, m1, s1, a2, m2, s2, c0, c1):
@@ -179,7 +179,7 @@ def test_lines_found_again_after_voigt_lines_are_held_fixed():
     # an invented Lyman absorber (z = 3.84, R = 1600): the saturated trough below the series
     # limit is fitted as Voigt and held fixed; every strong isolated Lyman line must still be
     # detected afterwards (the residual weights must not hide the not-yet-fitted lines)
-    from linefinder.synthetic import make_spectrum, random_parameters
+    from linefinder.simulate.suite import make_spectrum, random_parameters
 
     rng = np.random.default_rng([2, 140, 0])
     spec, truth = make_spectrum(rng, **random_parameters(rng), max_pixels=150000)
@@ -218,8 +218,8 @@ def test_resolved_members_beside_the_merged_series_limit_are_found(index, first,
     # lines 1.6-3 FWHM apart) and H8-H14 (R 7200, lines 2-5 of their saturated FWHM apart)
     # stand clear; each of them must be found on its own, neither swallowed by the trough
     # nor split into a pair that loses it
-    from linefinder.catalogue import build_catalogue
-    from linefinder.synthetic import make_spectrum, random_parameters
+    from linefinder.catalogue.build import build_catalogue
+    from linefinder.simulate.suite import make_spectrum, random_parameters
 
     gen = np.random.default_rng([2, index, 0])
     spec, truth = make_spectrum(gen, **random_parameters(gen), max_pixels=150_000)
@@ -234,20 +234,20 @@ def test_continuum_steps_are_read_the_same_on_either_axis_direction():
     # a continuum stepping up redward (a Lyman break, seen on a wavelength axis) and the
     # same spectrum on a frequency axis (pixels in the opposite order): the step is kept on
     # both; the mirrored step (lower on the red side) is kept on neither
-    from linefinder.features import _snap_steps
+    from linefinder.features.continuum import snap_steps
 
     n, p, reach = 400, 200, 25
     y = np.where(np.arange(n) < p, 1.0, 2.0)
-    assert list(_snap_steps([p], [], reach, y)) == [p]
-    assert list(_snap_steps([n - p], [], reach, y[::-1], blue_first=False)) == [n - p]
-    assert len(_snap_steps([n - p], [], reach, y[::-1])) == 0
-    assert len(_snap_steps([p], [], reach, y, blue_first=False)) == 0
+    assert list(snap_steps([p], [], reach, y)) == [p]
+    assert list(snap_steps([n - p], [], reach, y[::-1], blue_first=False)) == [n - p]
+    assert len(snap_steps([n - p], [], reach, y[::-1])) == 0
+    assert len(snap_steps([p], [], reach, y, blue_first=False)) == 0
     # absorption lines crowding the red side (merged members below a series limit) keep the
     # level change as lines, whichever way the axis runs
     crowd = [{"amp0": -1.0, "px": p + 10}, {"amp0": -1.0, "px": p + 30}]
-    assert len(_snap_steps([p], crowd, reach, y)) == 0
+    assert len(snap_steps([p], crowd, reach, y)) == 0
     mirrored = [{"amp0": -1.0, "px": n - f["px"]} for f in crowd]
-    assert len(_snap_steps([n - p], mirrored, reach, y[::-1], blue_first=False)) == 0
+    assert len(snap_steps([n - p], mirrored, reach, y[::-1], blue_first=False)) == 0
 
 
 
@@ -280,11 +280,11 @@ def _component(x, centre, fwhm, flux, flux_err):
     [(0.0, 3.2, -6.0, 40.0), (0.1, 2.6, 2.0, 40.0)],
 ])
 def test_degenerate_components_of_one_line_are_measured_as_one(rng, pair):
-    from linefinder.features import _merge_weak_blends
+    from linefinder.features.deblend import merge_weak_blends
 
     x, r, sig, dx, flux = _saturated_line(rng)
     feats = [_component(x, *p) for p in pair]
-    model = _merge_weak_blends(feats, x, r, sig, np.ones(len(x), bool), dx, len(x),
+    model = merge_weak_blends(feats, x, r, sig, np.ones(len(x), bool), dx, len(x),
                                fwhm_px=GAUSS_FWHM / 0.25, threshold=5.0)
     assert model is not None and len(feats) == 1
     fit = feats[0]["fit"]
@@ -297,10 +297,10 @@ def test_degenerate_components_of_one_line_are_measured_as_one(rng, pair):
 
 def test_resolved_weak_neighbours_are_not_merged(rng):
     # two weak absorption lines three FWHM apart are two lines, however uncertain each is
-    from linefinder.features import _merge_weak_blends
+    from linefinder.features.deblend import merge_weak_blends
 
     x, r, sig, dx, _ = _saturated_line(rng, tau0=0.0)
     feats = [_component(x, -3.5, 2.4, -0.02, 0.02), _component(x, 3.5, 2.4, -0.02, 0.02)]
-    assert _merge_weak_blends(feats, x, r, sig, np.ones(len(x), bool), dx, len(x),
+    assert merge_weak_blends(feats, x, r, sig, np.ones(len(x), bool), dx, len(x),
                               fwhm_px=GAUSS_FWHM / 0.25, threshold=5.0) is None
     assert len(feats) == 2

@@ -1,10 +1,10 @@
-"""Lines measured at the positions a known redshift predicts (`linefinder.forced`)."""
+"""Lines measured at the positions a known redshift predicts (`linefinder.identification.forced`)."""
 
 import numpy as np
 import pytest
 
-from linefinder.continuum import fit_continuum
-from linefinder.forced import (BLOB_WIDTHS, N_BEYOND, bridge_crowded, choose_lines,
+from linefinder.features.continuum import fit_continuum
+from linefinder.identification.forced import (BLOB_WIDTHS, N_BEYOND, bridge_crowded, choose_lines,
                                fixed_profile_fit,
                                gaussian_templates, measure_predicted)
 

@@ -6,13 +6,13 @@ import numpy as np
 import pytest
 from astropy import units as u
 
-from linefinder.catalogue import build_catalogue
-from linefinder.identify import identify
-from linefinder.line_lists import read_line_list
-from linefinder.readers import read_input
-from linefinder.samples import sample_path
-from linefinder.spectrum import SpectrumData
-from linefinder.synthetic import make_spectrum, random_parameters
+from linefinder.catalogue.build import build_catalogue
+from linefinder.identification.pipeline import identify
+from linefinder.io.line_lists import read_line_list
+from linefinder.io.read import read_input
+from linefinder.simulate.scenarios import sample_path
+from linefinder.spectral.spectrum import SpectrumData
+from linefinder.simulate.suite import make_spectrum, random_parameters
 
 
 def _correct(z, z0):
@@ -118,7 +118,7 @@ def test_featureless_identify_status_none(rng):
 def test_sky_mask_bands_absorb_and_lines_mask_either_sign():
     # telluric bands make absorption, so only absorption features in them are masked; sky-line
     # residuals can have either sign (band edges and the 5577.34 A line: common sky atlases)
-    from linefinder.contaminants import sky_mask
+    from linefinder.catalogue.contaminants import sky_mask
 
     c = [7200.0, 7200.0, 5577.34, 5577.34] * u.AA
     err = [0.1] * 4 * u.AA
@@ -132,7 +132,7 @@ def test_feature_flags_keep_what_identify_adds():
     # must hold them whole, not cut to the width of the longest measured flag
     from astropy.table import QTable
 
-    from linefinder.feature_table import new_table as _feature_table
+    from linefinder.identification.table import new_table as _feature_table
 
     feats = QTable({"center": [5000.0, 5010.0] * u.AA, "center_err": [0.1, 0.1] * u.AA,
                     "fwhm": [2.0, 2.0] * u.AA, "flux": [1.0, 2.0], "snr": [8.0, 9.0],
@@ -149,7 +149,7 @@ def test_one_line_gets_readings_not_a_redshift(rng):
     # times its S/N (Case B, Storey & Hummer 1995); so is [O III] 4960, whose 5008 partner
     # would stand 48 Å redward at three times its flux (the transition-probability ratio, a
     # fact of the trade); [O III] 5008 stays, its partner predicted too faint to be missed
-    from linefinder.profiles import GAUSS_FWHM
+    from linefinder.features.profiles import GAUSS_FWHM
 
     R = 1000.0
     x = np.exp(np.arange(np.log(4000.0), np.log(9000.0), 1 / (2.5 * R)))
@@ -171,7 +171,7 @@ def test_one_line_gets_readings_not_a_redshift(rng):
 
 
 def test_main_kind_weighs_features_by_their_evidence():
-    from linefinder.identify import _main_kind
+    from linefinder.identification.pipeline import _main_kind
 
     # one clear emission line (S/N 8) against five dips at the detection limit (S/N 3):
     # 64 against 45 in S/N squared; counted by plain S/N sums the dips would win (15 > 8)

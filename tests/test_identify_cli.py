@@ -6,12 +6,12 @@ import numpy as np
 import pytest
 from astropy import units as u
 
-from linefinder.cli import main
-from linefinder.doppler import C_KMS
-from linefinder.features import find_features
-from linefinder.readers import read_input
-from linefinder.samples import sample_path
-from linefinder.spectrum import SpectrumData
+from linefinder.cli.main import main
+from linefinder.spectral.doppler import C_KMS
+from linefinder.features.detect import find_features
+from linefinder.io.read import read_input
+from linefinder.simulate.scenarios import sample_path
+from linefinder.spectral.spectrum import SpectrumData
 
 
 def test_demo_recovers_truth(tmp_path, capsys):
@@ -127,8 +127,8 @@ def test_telluric_mask_is_separate_from_sky_mask(capsys):
     import numpy as np
     from astropy import units as u
 
-    from linefinder.identify import identify
-    from linefinder.synthetic import make_spectrum
+    from linefinder.identification.pipeline import identify
+    from linefinder.simulate.suite import make_spectrum
 
     rng = np.random.default_rng(7)
     spec, truth = make_spectrum(rng, z=0.1, snr=60, resolution=3000, kind="absorption",
@@ -147,7 +147,7 @@ def test_telluric_mask_is_separate_from_sky_mask(capsys):
 
 
 def test_report_label_spread_and_spike_record():
-    from linefinder.report import _spread
+    from linefinder.report.summary import _spread
 
     # labels closer than their separation move apart symmetrically about their mean; one that
     # stands alone stays where its feature is; the order is kept and no gap is below sep
@@ -169,7 +169,7 @@ def test_report_label_spread_and_spike_record():
 def test_lines_measured_at_z_are_marked_in_the_report(tmp_path, capsys):
     # a spectrum of the benchmark suite (invented data, seed 2 #6): a Lyman-series absorber
     # at z = 6.20 whose Ly13-Ly15 the search misses and the solution measures where z puts them
-    from linefinder.synthetic import make_spectrum, random_parameters
+    from linefinder.simulate.suite import make_spectrum, random_parameters
 
     gen = np.random.default_rng([2, 6, 0])
     spec, truth = make_spectrum(gen, **random_parameters(gen), max_pixels=150_000)

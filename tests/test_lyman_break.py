@@ -6,13 +6,13 @@ import numpy as np
 import pytest
 from astropy import units as u
 
-from linefinder.catalogue import build_catalogue
-from linefinder.cli import main
-from linefinder.continuum import find_steps, fit_continuum
-from linefinder.identify import identify
-from linefinder.lyman_break import continuum_step, is_break, mean_transmission
-from linefinder.profiles import GAUSS_FWHM
-from linefinder.spectrum import SpectrumData
+from linefinder.catalogue.build import build_catalogue
+from linefinder.cli.main import main
+from linefinder.features.continuum import find_steps, fit_continuum
+from linefinder.identification.pipeline import identify
+from linefinder.identification.lyman_break import continuum_step, is_break, mean_transmission
+from linefinder.features.profiles import GAUSS_FWHM
+from linefinder.spectral.spectrum import SpectrumData
 
 
 def test_mean_transmission_follows_the_measured_forest():

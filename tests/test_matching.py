@@ -5,8 +5,8 @@ import pytest
 from hypothesis import given, settings, strategies as st
 from scipy.optimize import linear_sum_assignment
 
-from linefinder.matching import NULL_LOG_LIKELIHOOD, TOL, assign
-from linefinder.redshift import classify, search_shift
+from linefinder.identification.matching import NULL_LOG_LIKELIHOOD, TOL, assign
+from linefinder.identification.redshift import classify, search_shift
 
 
 def _dense_optimum(y, sy, x, strength, s):
@@ -128,8 +128,8 @@ def test_masked_feature_is_named_only_where_a_line_must_be():
 def _he_ii_balmer(n_up):
     # He II n -> 2 lines: the catalogue's vacuum wavelengths and absorption strengths
     # (flat curve of growth), the lines a Lyman absorber's He II would show
-    from linefinder.catalogue import build_catalogue
-    from linefinder.expected_strengths import expected_strengths
+    from linefinder.catalogue.build import build_catalogue
+    from linefinder.catalogue.strengths import expected_strengths
 
     cat = build_catalogue("He II", 2, (3, n_up), resolution=20000)
     strength, group = expected_strengths(cat, "absorption")
@@ -141,7 +141,7 @@ def test_secondary_species_is_named_only_with_its_stronger_lines(stronger_seen, 
     # a feature on He II 917 (n = 21 -> 2) at S/N 7 in a window that also holds He II 958.7
     # and 992.4 (n = 9, 7 -> 2), which the catalogue's f-values on a flat curve of growth
     # predict at S/N 15 or more: with no feature there, the He II label is taken back
-    from linefinder.matching import withdraw_unsupported
+    from linefinder.identification.matching import withdraw_unsupported
 
     x, strength, group, cat = _he_ii_balmer(30)
     n_up = np.asarray(cat["n_upper"])

@@ -7,7 +7,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from specutils.utils.wcs_utils import refraction_index as specutils_index
 
-from linefinder.medium import (AIR_FORMULAS, air_to_vacuum, ciddor_index, conventional_wavelength,
+from linefinder.spectral.medium import (AIR_FORMULAS, air_to_vacuum, ciddor_index, conventional_wavelength,
                                refractive_index, vacuum_to_air)
 
 

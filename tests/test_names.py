@@ -5,9 +5,9 @@ ion lines by their wavelength in Å, He II 4686 in air)."""
 import numpy as np
 import pytest
 
-from linefinder.catalogue import build_catalogue
-from linefinder.names import line_label, line_labels, series_name
-from linefinder.species import parse_species
+from linefinder.catalogue.build import build_catalogue
+from linefinder.catalogue.names import line_label, line_labels, series_name
+from linefinder.physics.species import parse_species
 
 
 @pytest.mark.parametrize("species, nl, nu, name", [

@@ -5,7 +5,7 @@ import pytest
 from scipy.integrate import quad
 from scipy.special import eval_genlaguerre, gammaln
 
-from linefinder.radial import dipole_radial_integrals
+from linefinder.physics.radial import dipole_radial_integrals
 
 
 def _u(n, l, r):

@@ -6,10 +6,10 @@ from astropy import units as u
 from astropy.io import fits
 from astropy.table import QTable, Table
 
-from linefinder.cli import main
+from linefinder.cli.main import main
 from linefinder.errors import SpectrumFormatError
-from linefinder.header_units import parse_flux_unit, parse_spectral_unit
-from linefinder.readers import read_input
+from linefinder.io.units import parse_flux_unit, parse_spectral_unit
+from linefinder.io.read import read_input
 
 
 def _image(path, data, **cards):

@@ -2,7 +2,7 @@ import pytest
 import scipy.constants as sc
 
 from linefinder.errors import SpeciesError
-from linefinder.species import from_roman, parse_species, to_roman
+from linefinder.physics.species import from_roman, parse_species, to_roman
 
 
 @pytest.mark.parametrize("text, name, Z, A, charge", [

@@ -2,7 +2,7 @@
 
 import numpy as np
 
-from linefinder.synthetic import _saturated_fwhm, make_spectrum
+from linefinder.simulate.suite import _saturated_fwhm, make_spectrum
 
 
 def test_saturated_width_matches_the_profile_numerically():

@@ -7,7 +7,7 @@ recalled to the five digits shown; the comparison tolerance is 1e-3 relative.
 import numpy as np
 import pytest
 
-from linefinder.transitions import fine_components, multiplets
+from linefinder.physics.transitions import fine_components, multiplets
 
 WF2009_MULTIPLET_A = {  # (n_upper, n_lower): A in s^-1
     (2, 1): 4.6986e8, (3, 1): 5.5751e7, (4, 1): 1.2785e7,
@@ -65,7 +65,7 @@ def test_trk_sum_from_ground_state():
     # Sum of f(1s -> np) over bound states = 0.5650 (Bethe & Salpeter 1957, sec. 61;
     # the continuum carries the remaining 0.4350 of the Thomas-Reiche-Kuhn sum).
     # f defined with the electron mass sums to m_e/m_r for the two-body atom.
-    from linefinder.species import parse_species
+    from linefinder.physics.species import parse_species
     n = np.arange(2, 1501)
     m = multiplets("H", n, np.ones_like(n))
     tail = 1.6 / (2 * 1500 ** 2)   # f ~ 1.6 n^-3 (Kramers), summed beyond n = 1500

@@ -1,0 +1,368 @@
+"""Read 1-D spectra from FITS files, with astropy.io.fits.
+
+Handled: images with linear or log-linear dispersion (CRVAL1, CDELT1 or
+CD1_1, CRPIX1; CTYPE1 WAVE, AWAV, FREQ, ENER, WAVE-LOG, AWAV-LOG; DC-FLAG = 1;
+COEFF0/COEFF1), 2-D images holding one spectrum per row, companion
+extensions with the uncertainty (ERR, ERROR, SIGMA, NOISE, STDDEV, UNCERT),
+inverse variance (IVAR, INVVAR, WEIGHT) or variance (VAR, VARIANCE) and a
+mask (MASK, QUAL, QUALITY, DQ, FLAG); binary tables with spectral, flux and
+uncertainty columns found case-insensitively, as scalar rows or as vector
+cells (one spectrum per row).  Anything else goes to specutils' readers.
+"""
+
+import warnings
+
+import numpy as np
+from astropy import units as u
+from astropy.io import fits
+
+from ..errors import SpectrumFormatError, UnitsError
+from . import columns as roles
+from .columns import ERROR_ROLES, find_role, to_sigma
+from .units import parse_flux_unit, parse_spectral_unit
+from ..spectral.spectrum import SpectrumData
+
+__all__ = ["read_fits", "describe_fits", "is_fits"]
+
+RESOLUTION_KEYS = ("SPEC_RES", "SPECRES", "RESOLVPW", "RESPOWER", "RESOLUTN", "SPECRP")
+
+
+def is_fits(path):
+    try:
+        with open(path, "rb") as fh:
+            return fh.read(9) == b"SIMPLE  ="
+    except OSError:
+        return False
+
+
+def _open(path):
+    hdul = None
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("error")
+            with open(path, "rb") as fh:
+                hdul = fits.open(fh, memmap=False, lazy_load_hdus=False)
+                for h in hdul:
+                    _ = h.data  # force reading: truncated files fail here
+                hdul = fits.HDUList([h.copy() for h in hdul])
+        return hdul
+    except FileNotFoundError:
+        raise
+    except Exception as exc:  # astropy raises several types for broken files
+        text = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        raise SpectrumFormatError(f"{path}: not a readable FITS file ({text})") from None
+
+
+def _name(h):
+    return (h.name or "").strip().lower()
+
+
+def _medium_from_header(header, ctype=""):
+    ctype = ctype.upper()
+    if ctype.startswith("AWAV"):
+        return "air", "CTYPE1 = AWAV"
+    if ctype.startswith("WAVE"):
+        return "vacuum", "CTYPE1 = WAVE"
+    if ctype.startswith(("FREQ", "ENER", "WAVN", "VRAD", "VOPT")):
+        return "vacuum", "not a wavelength axis" if ctype in ("ENER", "FREQ") else \
+            f"CTYPE1 = {ctype} (not a wavelength)"
+    for key in ("AIRORVAC", "MEDIUM", "WAVEMEDI", "WAVFRAME", "SPECSYS_MEDIUM"):
+        val = str(header.get(key, "")).strip().lower()
+        if val.startswith("air"):
+            return "air", f"{key} = {header[key]}"
+        if val.startswith("vac"):
+            return "vacuum", f"{key} = {header[key]}"
+    if "VACUUM" in header:
+        return ("vacuum" if header["VACUUM"] else "air"), f"VACUUM = {header['VACUUM']}"
+    return None, None
+
+
+def _resolution(header):
+    for key in RESOLUTION_KEYS:
+        if key in header:
+            try:
+                val = float(header[key])
+            except (TypeError, ValueError):
+                continue
+            if val > 0:
+                return val
+    return None
+
+
+def _image_axis(header, n, path):
+    ctype = str(header.get("CTYPE1", "")).strip().upper()
+    crval = header.get("CRVAL1")
+    cdelt = header.get("CDELT1", header.get("CD1_1"))
+    crpix = header.get("CRPIX1", 1.0)
+    pix = np.arange(n, dtype=float) + 1.0
+    if crval is None or cdelt is None:
+        if "COEFF0" in header and "COEFF1" in header:   # log10(lambda/Å) = COEFF0 + COEFF1 i
+            return 10 ** (header["COEFF0"] + header["COEFF1"] * (pix - 1)), u.AA, ctype, "COEFF0/1"
+        raise SpectrumFormatError(f"{path}: the image has no spectral axis keywords "
+                                  "(CRVAL1 with CDELT1 or CD1_1)")
+    crval, cdelt, crpix = float(crval), float(cdelt), float(crpix)
+    unit_text = header.get("CUNIT1")
+    if ctype.endswith("-LOG"):
+        unit = parse_spectral_unit(unit_text or "Angstrom", what="CUNIT1")
+        axis = crval * np.exp(cdelt * (pix - crpix) / crval)     # FITS WCS paper III, eq. 5
+        return axis, unit, ctype, "log (CTYPE1 -LOG)"
+    if header.get("DC-FLAG", 0) == 1:
+        unit = parse_spectral_unit(unit_text or "Angstrom", what="CUNIT1")
+        return 10 ** (crval + cdelt * (pix - crpix)), unit, ctype, "log10 (DC-FLAG = 1)"
+    if unit_text is None:
+        if ctype.startswith("FREQ"):
+            unit_text = "Hz"
+        elif ctype.startswith("ENER"):
+            unit_text = "J"
+        elif ctype.startswith("WAVN"):
+            unit_text = "m-1"
+        elif ctype.startswith(("WAVE", "AWAV")):
+            unit_text = "m"
+        else:
+            unit_text = "Angstrom"   # older files without CUNIT1 use Å (IRAF practice)
+    unit = parse_spectral_unit(unit_text, what="CUNIT1")
+    return crval + cdelt * (pix - crpix), unit, ctype, "linear"
+
+
+def _companions(hdul, shape, skip):
+    found = {}
+    for i, h in enumerate(hdul):
+        if i == skip or h.data is None or not isinstance(h, (fits.ImageHDU, fits.PrimaryHDU)):
+            continue
+        if np.shape(h.data) != shape:
+            continue
+        name = _name(h)
+        for kind, names in ERROR_ROLES + (("mask", roles.MASK),):
+            if name in names and kind not in found:
+                found[kind] = (np.asarray(h.data, dtype=float), name.upper())
+    return found
+
+
+def _spectrum_images(hdul):
+    out = []
+    for i, h in enumerate(hdul):
+        if not isinstance(h, (fits.PrimaryHDU, fits.ImageHDU)) or h.data is None:
+            continue
+        name = _name(h)
+        if name in roles.SIGMA + roles.IVAR + roles.VAR + roles.MASK:
+            continue
+        if h.data.ndim in (1, 2) and h.data.shape[-1] >= 2:
+            out.append(i)
+    return out
+
+
+def _find(names, role):
+    """The name in `names` that plays `role` (a tuple of `columns`), or None."""
+    names = list(names)
+    idx = find_role(names, role)
+    return None if idx is None else names[idx]
+
+
+def _spectrum_tables(hdul):
+    out = []
+    for i, h in enumerate(hdul):
+        if isinstance(h, (fits.BinTableHDU, fits.TableHDU)) and h.data is not None and len(h.data):
+            cols = h.columns.names
+            if _find(cols, roles.AXIS) and _find(cols, roles.FLUX):
+                out.append(i)
+    return out
+
+
+def describe_fits(path):
+    """Lines describing the spectra a FITS file holds (for ``--list``)."""
+    hdul = _open(path)
+    lines = []
+    with hdul:
+        for i, h in enumerate(hdul):
+            kind = type(h).__name__
+            shape = None if h.data is None else (np.shape(h.data) if not hasattr(h, "columns")
+                                                 else f"{len(h.data)} rows: {', '.join(h.columns.names)}")
+            lines.append(f"HDU {i} {h.name!r} {kind} {shape}")
+        imgs = _spectrum_images(hdul)
+        tabs = _spectrum_tables(hdul)
+        n = sum((hdul[i].data.shape[0] if hdul[i].data.ndim == 2 else 1) for i in imgs)
+        n += sum(_table_count(hdul[i]) for i in tabs)
+        lines.append(f"{n} spectrum/spectra readable (choose with --hdu and --index)")
+    return lines
+
+
+def _table_count(h):
+    cols = h.columns.names
+    flux = h.data[_find(cols, roles.FLUX)]
+    return len(h.data) if np.ndim(flux) == 2 else 1
+
+
+def read_fits(path, *, index=None, hdu=None, medium=None, input_unit=None):
+    """Read one spectrum from a FITS file (see module docstring)."""
+    hdul = _open(path)
+    with hdul:
+        if hdu is not None:
+            key = int(hdu) if str(hdu).lstrip("-").isdigit() else str(hdu)
+            try:
+                hdul[key]
+            except (KeyError, IndexError):
+                raise SpectrumFormatError(f"{path}: has no HDU {hdu!r} ({len(hdul)} HDUs)") from None
+            chosen = hdul.index_of(key) if not isinstance(key, int) else key
+            images = [chosen] if chosen in _spectrum_images(hdul) else []
+            tables = [chosen] if chosen in _spectrum_tables(hdul) else []
+            if not images and not tables:
+                raise SpectrumFormatError(f"{path}: HDU {hdu!r} holds no spectrum")
+        else:
+            images = _spectrum_images(hdul)
+            tables = _spectrum_tables(hdul)
+        if tables:
+            return _read_table(path, hdul, tables, index, medium, input_unit)
+        if images:
+            return _read_image(path, hdul, images, index, medium, input_unit)
+    return _read_with_specutils(path, medium)
+
+
+def _pick(path, n, index, what):
+    if index is None:
+        if n > 1:
+            raise SpectrumFormatError(f"{path}: holds {n} {what}; choose one with --index 0..{n - 1}")
+        return 0
+    if not (0 <= index < n):
+        raise SpectrumFormatError(f"{path}: --index {index} is out of range (0..{n - 1})")
+    return index
+
+
+def _read_image(path, hdul, images, index, medium, input_unit):
+    spectra = []
+    for i in images:
+        data = hdul[i].data
+        rows = data.shape[0] if data.ndim == 2 else 1
+        spectra.extend((i, r if data.ndim == 2 else None) for r in range(rows))
+    which = _pick(path, len(spectra), index, "spectra")
+    i, row = spectra[which]
+    h = hdul[i]
+    header = h.header
+    data = np.asarray(h.data, dtype=float)
+    flux = data[row] if row is not None else data
+    if input_unit:
+        axis, _, ctype, form = _image_axis(header, len(flux), path)
+        unit = parse_spectral_unit(input_unit, what="--input-unit")
+        unit_source = "--input-unit"
+    else:
+        axis, unit, ctype, form = _image_axis(header, len(flux), path)
+        unit_source = "CUNIT1" if "CUNIT1" in header else "assumed (no CUNIT1)"
+    comp = _companions(hdul, data.shape, i)
+    sigma = None
+    noise_source = None
+    for kind in ("sigma", "ivar", "var"):
+        if kind in comp:
+            values, name = comp[kind]
+            values = values[row] if row is not None else values
+            sigma = to_sigma(kind, values)
+            noise_source = f"file ({name} extension, {'inverse variance' if kind == 'ivar' else kind})"
+            break
+    mask = None
+    if "mask" in comp:
+        values = comp["mask"][0]
+        mask = (values[row] if row is not None else values) != 0
+    flux_unit = parse_flux_unit(header.get("BUNIT", hdul[0].header.get("BUNIT")))
+    med, med_src = _medium(header, hdul[0].header, ctype, medium)
+    meta = {"source": str(path), "hdu": i, "index": row, "dispersion": form,
+            "axis_unit_source": unit_source, "medium": med, "medium_source": med_src,
+            "noise_source": noise_source, "resolution": _resolution(header) or _resolution(hdul[0].header),
+            "object": str(hdul[0].header.get("OBJECT", header.get("OBJECT", ""))).strip()}
+    return SpectrumData(axis=axis * unit, flux=flux * flux_unit,
+                        uncertainty=None if sigma is None else sigma * flux_unit, mask=mask, meta=meta)
+
+
+def _medium(header, primary, ctype, override):
+    if override:
+        return override, "--medium"
+    med, src = _medium_from_header(header, ctype)
+    if med is None:
+        med, src = _medium_from_header(primary, "")
+    if med is None:
+        return "vacuum", "not stated in the file: assumed vacuum (use --medium air to change)"
+    return med, src
+
+
+def _read_table(path, hdul, tables, index, medium, input_unit):
+    entries = []
+    for i in tables:
+        h = hdul[i]
+        entries.extend((i, r) for r in range(_table_count(h)))
+    which = _pick(path, len(entries), index, "spectra")
+    i, row = entries[which]
+    h = hdul[i]
+    cols = h.columns.names
+    data = h.data
+    ax_name = _find(cols, roles.AXIS)
+    fl_name = _find(cols, roles.FLUX)
+    vector = np.ndim(data[fl_name]) == 2
+
+    def column(name):
+        values = np.asarray(data[name], dtype=float)
+        return values[row] if vector else values
+
+    try:
+        axis = column(ax_name)
+        flux = column(fl_name)
+    except (TypeError, ValueError):
+        raise SpectrumFormatError(f"{path}: column {ax_name} or {fl_name} is not numeric") from None
+    col_units = {c.name: c.unit for c in h.columns}
+    if ax_name.lower() == "loglam":
+        axis = 10 ** axis
+        unit = u.AA
+        unit_source = "LOGLAM (log10 Å)"
+    elif input_unit:
+        unit = parse_spectral_unit(input_unit, what="--input-unit")
+        unit_source = "--input-unit"
+    elif col_units.get(ax_name):
+        unit = parse_spectral_unit(col_units[ax_name], what=f"column {ax_name}")
+        unit_source = f"TUNIT of {ax_name}"
+    else:
+        low = ax_name.lower()
+        guess = "MHz" if low.startswith(("freq", "nu")) else "keV" if low.startswith(("en", "e")) \
+            else "Angstrom"
+        unit = parse_spectral_unit(guess)
+        unit_source = f"assumed {guess} (column {ax_name} has no unit)"
+    sigma = None
+    noise_source = None
+    for kind, names in ERROR_ROLES:
+        name = _find(cols, names)
+        if name:
+            sigma = to_sigma(kind, column(name))
+            noise_source = f"file (column {name}{', inverse variance' if kind == 'ivar' else ''})"
+            break
+    mask_name = _find(cols, roles.MASK)
+    mask = column(mask_name) != 0 if mask_name else None
+    try:
+        flux_unit = parse_flux_unit(col_units.get(fl_name) or h.header.get("BUNIT"))
+    except UnitsError:
+        flux_unit = u.dimensionless_unscaled
+    ctype = "AWAV" if ax_name.lower() in ("wave_air", "awav") else ""
+    if ax_name.lower() == "wave_vac":
+        ctype = "WAVE"
+    if not unit.is_equivalent(u.m):
+        ctype = "ENER" if unit.is_equivalent(u.eV) else "FREQ"
+    med, med_src = _medium(h.header, hdul[0].header, ctype, medium)
+    meta = {"source": str(path), "hdu": i, "index": row if vector else None,
+            "axis_unit_source": unit_source, "medium": med, "medium_source": med_src,
+            "noise_source": noise_source, "columns": [ax_name, fl_name],
+            "resolution": _resolution(h.header) or _resolution(hdul[0].header),
+            "object": str(hdul[0].header.get("OBJECT", "")).strip()}
+    return SpectrumData(axis=axis * unit, flux=flux * flux_unit,
+                        uncertainty=None if sigma is None else sigma * flux_unit, mask=mask, meta=meta)
+
+
+def _read_with_specutils(path, medium):
+    from specutils import Spectrum
+
+    from ..spectral.spectrum import from_specutils
+
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            spec = Spectrum.read(path)
+    except Exception as exc:  # specutils raises many kinds for unknown layouts
+        text = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        raise SpectrumFormatError(f"{path}: no spectrum found in this FITS file ({text})") from None
+    meta = {"medium": medium or "vacuum",
+            "medium_source": "--medium" if medium else "assumed vacuum (specutils reader)",
+            "noise_source": "file" if spec.uncertainty is not None else None}
+    return from_specutils(spec, source=str(path), meta=meta)

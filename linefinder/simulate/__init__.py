@@ -1,0 +1,13 @@
+"""Spectra with known answers.
+
+`suite` draws the synthetic identification suite (redshift, resolution,
+S/N, non-hydrogen lines, sky residuals, spikes) used by the benchmarks and
+tests; `scenarios` makes the bundled sample spectra of the demo and their
+truth files.
+"""
+
+from .scenarios import write_samples, SAMPLES, sample_path
+from .suite import make_spectrum, make_noise_spectrum, random_parameters
+
+__all__ = ["write_samples", "SAMPLES", "sample_path", "make_spectrum", "make_noise_spectrum",
+           "random_parameters"]

@@ -1,0 +1,16 @@
+"""Spectra and their spectral axes.
+
+`spectrum` holds the spectrum type used inside linefinder (`SpectrumData`:
+axis, flux, uncertainty, mask, medium, resolving power) and its preparation;
+`medium` converts between air and vacuum (Edlén, Ciddor, and the conventional
+split by wavelength); `doppler` converts between redshift, velocity and
+wavelength factors in the usual conventions.
+"""
+
+from .spectrum import SpectrumData, prepare, segments, from_specutils
+from .medium import AIR_FORMULAS, vacuum_to_air, air_to_vacuum, refractive_index, conventional_wavelength
+from .doppler import VELOCITY_CONVENTIONS, wavelength_factor, velocity_from_factor, describe_shift
+
+__all__ = ["SpectrumData", "prepare", "segments", "from_specutils", "AIR_FORMULAS", "vacuum_to_air",
+           "air_to_vacuum", "refractive_index", "conventional_wavelength", "VELOCITY_CONVENTIONS",
+           "wavelength_factor", "velocity_from_factor", "describe_shift"]
