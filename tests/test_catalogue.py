@@ -65,7 +65,7 @@ def test_radio_h109alpha():
 
 
 def test_columns_units_and_meta():
-    t = build_catalogue("He II", 3, 4, medium="nist")
+    t = build_catalogue("He II", 3, 4, medium="conventional")
     for col in ("species", "label", "series", "n_lower", "l_lower", "j_lower", "n_upper", "l_upper",
                 "j_upper", "wavelength_vacuum", "wavelength_air", "wavenumber", "frequency",
                 "energy", "a_ul", "f_lu", "g_lower", "g_upper", "wavelength"):

@@ -21,14 +21,14 @@ from .._version import __version__
 from ..spectral.doppler import describe_shift, wavelength_factor
 from ..errors import AccuracyWarning, QuantumNumberError
 from ..physics.levels import level_label
-from ..spectral.medium import AIR_MIN_NM, NIST_AIR_RANGE_NM, _formula, conventional_wavelength, vacuum_to_air
+from ..spectral.medium import AIR_MIN_NM, CONVENTIONAL_AIR_RANGE_NM, _formula, conventional_wavelength, vacuum_to_air
 from .names import line_labels, series_names
 from ..physics.species import parse_species
 from ..physics.transitions import fine_components, multiplets
 
 __all__ = ["build_catalogue", "parse_range", "cache_dir", "CATALOGUE_COLUMNS", "MEDIA"]
 
-MEDIA = ("vacuum", "air", "nist")
+MEDIA = ("vacuum", "air", "conventional")
 N_MAX = 2000
 RYDBERG_MIN_N = 10
 CATALOGUE_COLUMNS = ["species", "label", "series", "n_lower", "l_lower", "j_lower", "n_upper",
@@ -195,8 +195,8 @@ def build_catalogue(species, lower, upper, *, fine=False, medium="vacuum", a_val
     fine : bool
         One row per fine-structure component (l and j filled) instead of one
         row per n -> n' multiplet.
-    medium : {"vacuum", "air", "nist"}
-        Medium of the ``wavelength`` column ("nist": air from 200 to 2000 nm,
+    medium : {"vacuum", "air", "conventional"}
+        Medium of the ``wavelength`` column ("conventional": air from 200 to 2000 nm,
         vacuum elsewhere).  ``wavelength_vacuum`` and ``wavelength_air`` are
         always both present.
     a_values : bool
@@ -254,7 +254,7 @@ def build_catalogue(species, lower, upper, *, fine=False, medium="vacuum", a_val
         table["wavelength"] = table["wavelength_air"]
     else:
         wv = table["wavelength_vacuum"].to_value(u.nm)
-        use_air = (wv >= NIST_AIR_RANGE_NM[0]) & (wv <= NIST_AIR_RANGE_NM[1])
+        use_air = (wv >= CONVENTIONAL_AIR_RANGE_NM[0]) & (wv <= CONVENTIONAL_AIR_RANGE_NM[1])
         table["wavelength"] = np.where(use_air, table["wavelength_air"].to_value(u.nm), wv) * u.nm
     table.meta.clear()
     table.meta.update({

@@ -141,7 +141,7 @@ def _cmd_lines(args):
     sfx = unit_suffix(unit if unit.is_equivalent(u.m) else u.nm)
     wl_col = f"wavelength_{'air' if args.medium == 'air' else 'vacuum'}_{sfx}"
     cols = ["species", "label", "transition", "n_lower", "n_upper", wl_col]
-    if args.medium == "nist":
+    if args.medium == "conventional":
         cols.append(f"wavelength_air_{sfx}")
     if not unit.is_equivalent(u.m):
         cols.append(f"position_{unit_suffix(unit)}")
@@ -180,7 +180,7 @@ def register(sub):
     p.add_argument("--upper", default="2-30", metavar="N[-M]", help="upper n or range (default 2-30)")
     p.add_argument("--fine", action="store_true", help="one row per fine-structure component")
     p.add_argument("--medium", choices=MEDIA, default="vacuum",
-                   help="medium of the printed wavelength (nist: air 200-2000 nm, vacuum elsewhere)")
+                   help="medium of the printed wavelength (conventional: air 200-2000 nm, vacuum elsewhere)")
     p.add_argument("--air-formula", default="morton2000",
                    help=f"one of {', '.join(AIR_FORMULAS)} (default morton2000, the IAU standard)")
     p.add_argument("--air-temperature", type=float, metavar="C",

@@ -8,6 +8,7 @@ from ..identification.pipeline import identify
 from ..io.line_lists import read_line_list
 from ..report.summary import lyman_break_text, summary, write_report
 from ..io.tables import json_default
+from ..features.flags import Flag, has_flag
 
 __all__ = ["register"]
 
@@ -42,7 +43,7 @@ def _print_summary(res, s, source):
         name = r["label"] or (f"[user] {r['user_line']}" if r["user_line"] else
                               (f"[companion] {r['companion']}" if r["companion"] else "unidentified"))
         res_txt = "" if r["residual_kms"] is None else f"{r['residual_kms']:+7.1f} km/s"
-        if r["label"] and "at_z" in r["flags"].split(","):
+        if r["label"] and has_flag(r["flags"], Flag.AT_Z):
             res_txt = f"{'at z':>12}"
         print(f"  {r['center']:12.6g} {s['unit']:<8} {r['kind']:<10} S/N {r['snr']:6.1f}  "
               f"{r['species'] or '':<6} {name:<14} {res_txt}  {r['flags']}")

@@ -68,15 +68,15 @@ def features_in_unit(table, unit):
     out["amplitude"] = table["amplitude"].value
     out["flux"] = table["flux"].value
     out["flux_err"] = table["flux_err"].value
-    eqw = table["eqw"].value
-    out["eqw"] = np.sign(eqw) * width(np.abs(eqw)) if len(c) else np.array([], float)
+    equivalent_width = table["equivalent_width"].value
+    out["equivalent_width"] = np.sign(equivalent_width) * width(np.abs(equivalent_width)) if len(c) else np.array([], float)
     out["snr"] = table["snr"]
     out["kind"] = table["kind"]
     out["flags"] = table["flags"]
-    for extra in ("eqw_err", "profile", "continuum", "chi2_red"):
+    for extra in ("equivalent_width_err", "profile", "continuum", "chi2_red"):
         if extra in table.colnames:
             col = table[extra]
-            out[extra] = width(col.value) if extra == "eqw_err" else getattr(col, "value", col)
+            out[extra] = width(col.value) if extra == "equivalent_width_err" else getattr(col, "value", col)
     out.meta.update(table.meta)
     out.meta["unit"] = str(unit)
     out.meta["flux_unit"] = str(table["flux"].unit)

@@ -7,8 +7,8 @@ joint fits and repairs their components, and `detect` (`find_features`)
 runs the whole path and returns a table with honest uncertainties.
 """
 
-from .detect import find_features, FeatureResult, FEATURE_COLUMNS, EQW_CONVENTION
+from .detect import find_features, FeatureResult, FEATURE_COLUMNS, EQUIVALENT_WIDTH_CONVENTION
 from .continuum import fit_continuum, robust_noise, find_steps
 
-__all__ = ["find_features", "FeatureResult", "FEATURE_COLUMNS", "EQW_CONVENTION", "fit_continuum",
+__all__ = ["find_features", "FeatureResult", "FEATURE_COLUMNS", "EQUIVALENT_WIDTH_CONVENTION", "fit_continuum",
            "robust_noise", "find_steps"]

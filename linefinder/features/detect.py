@@ -31,12 +31,13 @@ from .candidates import exclusion, find_candidates, find_spikes, inflated_weight
 from .continuum import find_steps, fit_continuum as _fit_continuum, robust_noise, snap_steps
 from .deblend import (fit_all_groups, group_model, make_groups, merge_weak_blends, split_wide,
                       sync_fits, usable)
+from .flags import Flag, has_flag
 
-__all__ = ["find_features", "FeatureResult", "FEATURE_COLUMNS", "EQW_CONVENTION"]
+__all__ = ["find_features", "FeatureResult", "FEATURE_COLUMNS", "EQUIVALENT_WIDTH_CONVENTION"]
 
 FEATURE_COLUMNS = ["center", "center_err", "fwhm", "fwhm_err", "amplitude", "flux", "flux_err",
-                   "eqw", "snr", "kind", "flags"]
-EQW_CONVENTION = "W = integral of (1 - F/Fc): positive for absorption, negative for emission"
+                   "equivalent_width", "snr", "kind", "flags"]
+EQUIVALENT_WIDTH_CONVENTION = "W = integral of (1 - F/Fc): positive for absorption, negative for emission"
 DEFAULT_FWHM_PX = 3.0
 
 
@@ -119,7 +120,7 @@ def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorpt
         spike_pixels.extend(seg_spikes)
         if not R:
             narrow = [f["fwhm"] / dx[f["pixel"] - lo] for f in seg_rows
-                      if f["group"] == 1 and f["snr"] > 10 and "poor_fit" not in f["flags"]]
+                      if f["group"] == 1 and f["snr"] > 10 and not has_flag(f["flags"], Flag.POOR_FIT)]
             estimated_widths.extend(narrow)
         cont_all[lo:hi] = cont
         rows.extend(seg_rows)
@@ -137,7 +138,7 @@ def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorpt
                        "medium_source": spec.meta.get("medium_source"),
                        "unit": str(spec.axis.unit), "noise_source": noise_source,
                        "resolution": R, "resolution_source": res_source or "default 3-pixel FWHM",
-                       "snr_threshold": snr, "eqw_convention": EQW_CONVENTION,
+                       "snr_threshold": snr, "eqw_convention": EQUIVALENT_WIDTH_CONVENTION,
                        "n_pixels": len(y_all), "n_masked": int(spec.mask.sum()),
                        "spike_pixels": spike_pixels})
     return FeatureResult(features=table, spectrum=spec, continuum=cont_all, noise=sig_all,
@@ -276,23 +277,23 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset, *,
         snr_fit, ipx, fpx, from_edge = kept
         flags = []
         if g.get("blend"):
-            flags.append("blend")
+            flags.append(Flag.BLEND.value)
         if from_edge < 2 * fpx:
-            flags.append("edge")
+            flags.append(Flag.EDGE.value)
         a, b = max(0, int(ipx - fpx)), min(n, int(ipx + fpx) + 1)
         if not good[a:b].all():
-            flags.append("masked")
+            flags.append(Flag.MASKED.value)
         if (not fit["ok"]) or fit["chi2_red"] > 3 or not np.isfinite(fit["center_err"]) \
                 or refit_failed:
-            flags.append("poor_fit")
+            flags.append(Flag.POOR_FIT.value)
         if fit.get("at_bound"):
-            flags.append("unresolved")
+            flags.append(Flag.UNRESOLVED.value)
         c = float(np.interp(fit["center"], x, cont))
-        eqw = -fit["flux"] / c if c != 0 else np.nan
-        eqw_err = abs(fit["flux_err"] / c) if c != 0 else np.nan
+        equivalent_width = -fit["flux"] / c if c != 0 else np.nan
+        equivalent_width_err = abs(fit["flux_err"] / c) if c != 0 else np.nan
         rows.append({**fit, "flags": ",".join(flags), "snr": snr_fit, "snr_det": g["snr_det"],
                      "kind": "emission" if fit["amplitude"] > 0 else "absorption",
-                     "eqw": eqw, "eqw_err": eqw_err, "continuum": c, "pixel": ipx + offset,
+                     "equivalent_width": equivalent_width, "equivalent_width_err": equivalent_width_err, "continuum": c, "pixel": ipx + offset,
                      "group": g["group"]})
     return rows, cont, (np.flatnonzero(spikes) + offset).tolist()
 
@@ -311,8 +312,9 @@ def _table(rows, spec, cont_all, kinds):
     t["amplitude"] = col("amplitude") * fu
     t["flux"] = col("flux") * fu * unit
     t["flux_err"] = col("flux_err") * fu * unit
-    t["eqw"] = col("eqw") * unit
-    t["eqw_err"] = col("eqw_err") * unit
+    t["equivalent_width"] = col("equivalent_width") * unit
+    t["equivalent_width_err"] = col("equivalent_width_err") * unit
+    t["equivalent_width"].info.description = EQUIVALENT_WIDTH_CONVENTION
     t["snr"] = col("snr")
     t["kind"] = np.array([r["kind"] for r in rows], dtype=str) if rows else np.array([], dtype=str)
     t["flags"] = np.array([r["flags"] for r in rows], dtype=str) if rows else np.array([], dtype=str)

@@ -42,6 +42,7 @@ from .matching import assign, withdraw_unsupported
 from ..spectral.medium import air_to_vacuum
 from .redshift import _within, classify, refine, search_shift, solution_probability
 from .single_line import READING_STRENGTH, single_line_readings
+from ..features.flags import Flag, has_flag, join_flags
 
 __all__ = ["identify", "Identification", "default_species", "read_line_list"]
 
@@ -288,7 +289,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     x_all = np.concatenate([x, x_comp, x_user])
     strength_assign = _defer_to_primary(x, strength, line_weight < 1, 1.0 / R)
     strength_all = np.concatenate([strength_assign, st_comp, np.ones(len(x_user))])
-    blend = np.array(["blend" in str(f) for f in feats["flags"]], dtype=bool)
+    blend = np.array([has_flag(f, Flag.BLEND) for f in feats["flags"]], dtype=bool)
     group_all = np.concatenate([np.asarray(group, dtype=str),
                                 np.array([f"companion|{k}" for k in range(nc)], dtype=str),
                                 np.array([f"user|{k}" for k in range(len(x_user))], dtype=str)])
@@ -426,8 +427,7 @@ def _primary_in_blends(out, idx, res, y, sy, fwhm_ln, s, x, secondary):
         res.best[k] = jj
         res.resid[k] = (rest - x[jj]) / sy[k] if sy[k] > 0 else np.nan
         i = idx[k]
-        if "blend" not in out["flags"][i]:
-            out["flags"][i] = ",".join(p for p in (out["flags"][i], "blend") if p)
+        out["flags"][i] = join_flags(out["flags"][i], Flag.BLEND)
 
 
 def _defer_to_primary(x, strength, secondary, fwhm_ln, factor=0.1):

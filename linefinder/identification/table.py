@@ -16,6 +16,7 @@ from ..catalogue.contaminants import sky_mask
 from ..spectral.doppler import C_KMS
 from .forced import bridge_crowded, choose_lines, measure_predicted
 from ..spectral.medium import vacuum_to_air
+from ..features.flags import Flag, has_flag
 
 __all__ = ["new_table", "fill", "append_at_z", "peaks_as_features", "AT_Z_SNR"]
 
@@ -140,7 +141,7 @@ def append_at_z(out, best, cat, x, group, primary, s, s_err, pixels, y, fwhm_ln,
     matched = {int(j): i for i, j in enumerate(best) if 0 <= j < ncat and out["system"][i] == 1}
     if not matched:
         return out
-    blend = np.array(["blend" in str(f) for f in out["flags"]], dtype=bool)
+    blend = np.array([has_flag(f, Flag.BLEND) for f in out["flags"]], dtype=bool)
     n_up = np.asarray(cat["n_upper"], dtype=int)
     # a row merging lines of several levels (a series past its resolution limit) is no
     # line to measure on its own; it still stands in the fit beside the others
@@ -181,7 +182,7 @@ def append_at_z(out, best, cat, x, group, primary, s, s_err, pixels, y, fwhm_ln,
     new["flux"] = amp * fwhm.value * np.sqrt(np.pi / (4 * np.log(2))) * out["flux"].unit
     new["snr"] = snr
     new["kind"] = np.full(len(cand), kind)
-    new["flags"] = np.full(len(cand), "at_z")
+    new["flags"] = np.full(len(cand), Flag.AT_Z.value)
     new = new_table(new, np.zeros(len(cand), bool), np.zeros(len(cand), bool), False, False)
     for col in ("label", "species", "series", "n_lower", "n_upper"):
         new[col] = np.asarray(cat[col][cand]).astype(new[col].dtype)

@@ -10,6 +10,7 @@ from astropy import units as u
 from ..spectral.doppler import C_KMS
 from ..errors import OutputExistsError
 from ..io.tables import json_default
+from ..features.flags import Flag, has_flag
 
 __all__ = ["summary", "write_report", "lyman_break_text"]
 
@@ -29,7 +30,7 @@ def _companion(f, i):
 
 def _at_z(f, i):
     """Whether row i is a line measured at the position the solution predicts."""
-    return "at_z" in str(f["flags"][i]).split(",")
+    return has_flag(f["flags"][i], Flag.AT_Z)
 
 
 def _other_name(f, i):
@@ -229,7 +230,7 @@ def _plot(result, path_png, path_svg):
         other = _other_name(f, i)
         color = "tab:blue" if f["label"][i] else ("tab:purple" if other else "tab:red")
         ax.axvline(c, color=color, lw=0.6, alpha=0.4, ls=":" if _at_z(f, i) else "-")
-        names.append(f["label"][i] or other or ("sky" if "sky" in str(f["flags"][i]) else "?"))
+        names.append(f["label"][i] or other or ("sky" if has_flag(f["flags"][i], Flag.SKY) else "?"))
         colors.append(color)
     _label_row(axl, ax, centres, names, colors)
     if result.z is not None and len(result.lines):
@@ -343,7 +344,7 @@ def write_report(result, folder, *, force=False, source=""):
             " detection; settle it with more data).</p>")
     if summ.get("lyman_break"):
         readings += f"<p>{lyman_break_text(summ['lyman_break'])}</p>"
-    if any("at_z" in r["flags"].split(",") for r in summ["features"]):
+    if any(has_flag(r["flags"], Flag.AT_Z) for r in summ["features"]):
         readings += ("<p>Rows flagged <i>at_z</i> were not found by the blind search: they are"
                      " lines the solution predicts, measured at their predicted position with"
                      " the width of the identified lines beside them. Their position is the"

@@ -10,7 +10,7 @@ converged to 1e-12 relative or better).
 
 All formulas take the vacuum wavelength; conversions are defined only from
 200 nm upwards, where air wavelengths are in use; below that air values are
-NaN.  The convention of the main reference database ("nist") states lines
+NaN.  The "conventional" medium states lines
 in air from 200 nm to 2000 nm and in vacuum elsewhere.
 """
 
@@ -20,10 +20,10 @@ from astropy import units as u
 from ..errors import LinefinderError
 
 __all__ = ["AIR_FORMULAS", "refractive_index", "vacuum_to_air", "air_to_vacuum",
-           "ciddor_index", "conventional_wavelength", "AIR_MIN_NM", "NIST_AIR_RANGE_NM"]
+           "ciddor_index", "conventional_wavelength", "AIR_MIN_NM", "CONVENTIONAL_AIR_RANGE_NM"]
 
 AIR_MIN_NM = 200.0
-NIST_AIR_RANGE_NM = (200.0, 2000.0)
+CONVENTIONAL_AIR_RANGE_NM = (200.0, 2000.0)
 
 AIR_FORMULAS = {
     "morton2000": "Morton2000",
@@ -148,5 +148,5 @@ def conventional_wavelength(vacuum_wavelength, *, formula="morton2000"):
     wl = u.Quantity(vacuum_wavelength)
     nm = wl.to_value(u.nm)
     air = vacuum_to_air(wl, formula=formula)
-    use_air = (nm >= NIST_AIR_RANGE_NM[0]) & (nm <= NIST_AIR_RANGE_NM[1])
+    use_air = (nm >= CONVENTIONAL_AIR_RANGE_NM[0]) & (nm <= CONVENTIONAL_AIR_RANGE_NM[1])
     return np.where(use_air, air.to_value(wl.unit), wl.value) * wl.unit
