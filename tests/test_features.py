@@ -78,7 +78,7 @@ def test_gaussian_line_measured(rng):
     assert abs(row["fwhm"].value - GAUSS_FWHM * s) < 4 * row["fwhm_err"].value
     assert abs(row["flux"].value - flux) < 4 * row["flux_err"].value
     # equivalent width convention: negative for emission, W = -flux / continuum
-    assert row["eqw"].value == pytest.approx(-flux / cont, rel=0.05)
+    assert row["equivalent_width"].value == pytest.approx(-flux / cont, rel=0.05)
 
 
 def test_absorption_and_emission_both_found_and_restricted(rng):

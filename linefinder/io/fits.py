@@ -208,13 +208,102 @@ def read_fits(path, *, index=None, hdu=None, medium=None, input_unit=None):
             if not images and not tables:
                 raise SpectrumFormatError(f"{path}: HDU {hdu!r} holds no spectrum")
         else:
+            arms = _arms(hdul)
+            if arms:
+                return _read_arms(path, hdul, arms, index, medium)
             images = _spectrum_images(hdul)
-            tables = _spectrum_tables(hdul)
+            tables = _preferred_tables(hdul, _spectrum_tables(hdul))
         if tables:
             return _read_table(path, hdul, tables, index, medium, input_unit)
         if images:
             return _read_image(path, hdul, images, index, medium, input_unit)
     return _read_with_specutils(path, medium)
+
+
+def _preferred_tables(hdul, tables):
+    """The tables to choose from: a coadd when the file holds one beside its single exposures,
+    and one copy of tables that hold the same data."""
+    coadd = [i for i in tables if _name(hdul[i]) == "coadd"]
+    if coadd:
+        return coadd[:1]
+    out = []
+    for i in tables:
+        if not any(hdul[i].data.tobytes() == hdul[j].data.tobytes() for j in out):
+            out.append(i)
+    return out
+
+
+def _arms(hdul):
+    """Arm prefixes (B, R, Z ...) of a file whose arms keep their wavelengths in image
+    extensions of their own (``B_WAVELENGTH`` beside ``B_FLUX``, ``B_IVAR``, ``B_MASK``)."""
+    names = {_name(h) for h in hdul}
+    return [n[:-len("_wavelength")] for n in (_name(h) for h in hdul)
+            if n.endswith("_wavelength") and n[:-len("_wavelength")] + "_flux" in names]
+
+
+def _join_arms(pieces):
+    """One spectrum from arms (wave, flux, ivar, bad); where arms share pixels (same
+    wavelengths within 1e-6 of a pixel) they are combined by inverse variance, and elsewhere
+    an overlap is split at its middle."""
+    wave, flux, ivar = (np.array(pieces[0][k]) for k in range(3))
+    for w2, f2, iv2 in (p[:3] for p in pieces[1:]):
+        lo, hi = w2[0], wave[-1]
+        if hi < lo:                                   # no overlap: append
+            wave, flux, ivar = (np.concatenate([a, b]) for a, b in ((wave, w2), (flux, f2), (ivar, iv2)))
+            continue
+        j = np.searchsorted(wave, w2)
+        step = np.median(np.diff(wave))
+        same = (j < len(wave)) & (np.abs(wave[np.minimum(j, len(wave) - 1)] - w2) < 1e-6 * step)
+        if same.sum() >= 0.9 * np.sum(w2 <= hi):
+            k = j[same]
+            tot = ivar[k] + iv2[same]
+            with np.errstate(invalid="ignore", divide="ignore"):
+                flux[k] = np.where(tot > 0, (flux[k] * ivar[k] + f2[same] * iv2[same]) / tot, flux[k])
+            ivar[k] = tot
+            rest = ~same & (w2 > hi)
+        else:
+            mid = 0.5 * (lo + hi)
+            keep = wave < mid
+            wave, flux, ivar = wave[keep], flux[keep], ivar[keep]
+            rest = w2 >= mid
+        wave, flux, ivar = (np.concatenate([a, b[rest]]) for a, b in ((wave, w2), (flux, f2), (ivar, iv2)))
+    return wave, flux, ivar
+
+
+def _read_arms(path, hdul, arms, index, medium):
+    """One row of a file with per-arm wavelength extensions, its arms joined."""
+    rows = np.atleast_2d(hdul[f"{arms[0]}_FLUX"].data).shape[0]
+    row = _pick(path, rows, index, "spectra")
+    pieces = []
+    for arm in arms:
+        wave = np.asarray(hdul[f"{arm}_WAVELENGTH"].data, dtype=float)
+        flux = np.atleast_2d(np.asarray(hdul[f"{arm}_FLUX"].data, dtype=float))[row]
+        names = {_name(h) for h in hdul}
+        ivar = np.atleast_2d(np.asarray(hdul[f"{arm}_IVAR"].data, dtype=float))[row] \
+            if f"{arm}_ivar" in names else np.ones_like(flux)
+        if f"{arm}_mask" in names:
+            ivar = np.where(np.atleast_2d(hdul[f"{arm}_MASK"].data)[row] != 0, 0.0, ivar)
+        ivar = np.where(np.isfinite(flux) & np.isfinite(ivar), ivar, 0.0)
+        pieces.append((wave, flux, ivar))
+    pieces.sort(key=lambda p: p[0][0])
+    wave, flux, ivar = _join_arms(pieces)
+    header = hdul[f"{arms[0]}_FLUX"].header
+    unit = parse_spectral_unit(hdul[f"{arms[0]}_WAVELENGTH"].header.get("BUNIT", "Angstrom"),
+                               what="BUNIT of the wavelength extension")
+    flux_unit = parse_flux_unit(header.get("BUNIT"))
+    med, med_src = _medium(hdul[f"{arms[0]}_WAVELENGTH"].header, hdul[0].header, "", medium)
+    obj = ""
+    if "FIBERMAP" in hdul and row < len(hdul["FIBERMAP"].data):
+        fm = hdul["FIBERMAP"].data[row]
+        cols = [c.upper() for c in hdul["FIBERMAP"].columns.names]
+        obj = " ".join(f"{c}={fm[c]}" for c in ("TARGETID", "OBJTYPE") if c in cols).strip()
+    meta = {"source": str(path), "hdu": None, "index": row, "arms": [a.upper() for a in arms],
+            "axis_unit_source": "BUNIT of the wavelength extensions", "medium": med,
+            "medium_source": med_src, "noise_source": "file (per-arm IVAR, arms joined)",
+            "resolution": None, "object": obj}
+    sigma = to_sigma("ivar", ivar)
+    return SpectrumData(axis=wave * unit, flux=flux * flux_unit, uncertainty=sigma * flux_unit,
+                        mask=ivar <= 0, meta=meta)
 
 
 def _pick(path, n, index, what):

@@ -60,7 +60,16 @@ def _meta_from_comments(comments):
             except ValueError:
                 pass
         elif key in ("unit", "units", "axis unit", "wavelength unit", "spectral unit"):
-            meta["unit"] = val
+            # free text such as "wavelength in Angstrom, flux in erg/s/cm2/Angstrom"
+            axis_word = re.search(r"\b(?:wavelength|frequency|energy|wave)\s+in\s+([^\s,;()]+)", val, re.I)
+            flux_word = re.search(r"\bflux\s+in\s+([^\s,;()]+)", val, re.I)
+            if axis_word:
+                meta["unit"] = axis_word.group(1)
+                meta["unit_from_text"] = val
+                if flux_word:
+                    meta["flux_unit"] = flux_word.group(1)
+            else:
+                meta["unit"] = val
         elif key in ("flux unit", "flux units", "bunit"):
             meta["flux_unit"] = val
         elif key in ("object", "target", "name"):
