@@ -171,7 +171,8 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset, *,
     den_cache = {}      # matched-filter denominators for the weights w (keyed by id(w))
     # continuum and features refine each other: wide features push the knots apart
     for _ in range(2):
-        feats = new_features(find_candidates(y - cont, w, fwhm_px, threshold, kinds, n, den_cache), [])
+        feats = new_features(find_candidates(y - cont, w, fwhm_px, threshold, kinds, n, den_cache),
+                             [])
         if not feats:
             break
         if len(steps):
@@ -213,20 +214,20 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset, *,
             split = split_wide(feats, x, rr, sig, good, dx, fwhm_px, n, threshold)
             if split:
                 model = fit_all_groups(make_groups(feats), x, rr, sig, good, 0, n, dx,
-                                    changed={id(f) for f in split})
+                                       changed={id(f) for f in split})
                 sync_fits(feats, x, dx, sig)
         # (inflated weights need a model: with none, the unfitted lines would inflate their
         # own local RMS and hide themselves)
         w_round = w if fresh else inflated_weights(rr, model, sig, good, w, feats)
         added = new_features(find_candidates(rr - model, w_round, fwhm_px, threshold, kinds, n,
-                                       den_cache if w_round is w else None), feats + frozen)
+                                             den_cache if w_round is w else None), feats + frozen)
         feats.extend(added)
         if not added:
             if split:
                 continue
             break
         model = fit_all_groups(make_groups(feats), x, rr, sig, good, 0, n, dx,
-                            changed=None if fresh else {id(f) for f in added})
+                               changed=None if fresh else {id(f) for f in added})
         fresh = False
         sync_fits(feats, x, dx, sig)
         for _ in range(2):
@@ -260,6 +261,12 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset, *,
         fit_all_groups(make_groups(frozen), x, r - model, sig, good, 0, n, dx)
         sync_fits(frozen, x, dx, sig)
         feats = feats + frozen
+    rows = _rows(feats, x, dx, n, fwhm_px, threshold, good, cont, offset)
+    return rows, cont, (np.flatnonzero(spikes) + offset).tolist()
+
+
+def _rows(feats, x, dx, n, fwhm_px, threshold, good, cont, offset):
+    """One row per usable feature of a segment: its fit, S/N, flags and equivalent width."""
     rows = []
     for g in feats:
         # the last fit, else (when it is unusable) the last converged one: a neighbour added
@@ -293,9 +300,11 @@ def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset, *,
         equivalent_width_err = abs(fit["flux_err"] / c) if c != 0 else np.nan
         rows.append({**fit, "flags": ",".join(flags), "snr": snr_fit, "snr_det": g["snr_det"],
                      "kind": "emission" if fit["amplitude"] > 0 else "absorption",
-                     "equivalent_width": equivalent_width, "equivalent_width_err": equivalent_width_err, "continuum": c, "pixel": ipx + offset,
+                     "equivalent_width": equivalent_width,
+                     "equivalent_width_err": equivalent_width_err, "continuum": c,
+                     "pixel": ipx + offset,
                      "group": g["group"]})
-    return rows, cont, (np.flatnonzero(spikes) + offset).tolist()
+    return rows
 
 
 def _table(rows, spec, cont_all, kinds):

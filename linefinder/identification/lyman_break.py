@@ -28,7 +28,7 @@ outer part of the blue window only, and the 4000 Å break lies redward of
 
 import numpy as np
 
-__all__ = ["LYA_REST_VACUUM_AA", "mean_transmission", "continuum_step", "is_break",
+__all__ = ["break_reading", "LYA_REST_VACUUM_AA", "mean_transmission", "continuum_step", "is_break",
            "BREAK_RATIO", "BREAK_SIGMA", "CONTINUUM_SNR", "WINDOW_LN", "GAP_FWHM"]
 
 # Lyα 1s-2p, vacuum, fine-structure weighted (NIST ASD, Kramida et al.; 1215.67 Å)
@@ -109,3 +109,36 @@ def is_break(step):
     inner = step.get("inner_ratio", np.nan), step.get("inner_ratio_err", np.nan)
     return bool(step["ratio"] + BREAK_SIGMA * step["ratio_err"] < BREAK_RATIO
                 and np.isfinite(inner[0]) and inner[0] + 2.0 * inner[1] < BREAK_RATIO)
+
+
+def break_reading(pixels, R, cand, readings, y, fwhm_ln):
+    """The continuum step at feature `cand` when it may be Lyα (a single-line reading) and
+    the continuum drops blueward of it (`lyman_break.is_break`); a dict for the result's
+    ``lyman_break`` (with the reading's ``z``), else None.  `pixels`: `spectral.axis.sorted_pixels`."""
+    lya = [r for r in readings if r["label"] == "Lyα" and r["species"] == "H I"]
+    if cand is None or not lya:
+        return None
+    ax, flux, sigma = pixels[:3]
+    # (features much broader than the windows are left in: the trace of a continuum that
+    # did not follow the step, not lines)
+    others = fwhm_ln < WINDOW_LN / 3
+    others[cand] = False
+    # other features' pixels left out (+/- 2 FWHM; unknown widths: 3 resolution elements)
+    half = 2.0 * np.where(fwhm_ln[others] > 0, fwhm_ln[others], 1.5 / R)
+    yo = y[others]
+    exclude = np.zeros(len(ax), bool)
+    for a, b in zip(np.searchsorted(ax, yo - half), np.searchsorted(ax, yo + half)):
+        exclude[a:b] = True
+    width = float(fwhm_ln[cand]) or 1.0 / R
+    step = continuum_step(ax, flux, sigma, float(y[cand]), width, exclude=exclude)
+    if not is_break(step):
+        return None
+    zz = lya[0]["z"]
+    gap = GAP_FWHM * width
+    return {"z": zz, "ratio": step["ratio"], "ratio_err": step["ratio_err"],
+            "continuum_snr": step["red_snr"], "blue_mean": step["blue_mean"],
+            "red_mean": step["red_mean"],
+            # the windows as ratios to the line's position: blue (lo, hi), red (lo, hi)
+            "windows": [[float(np.exp(-gap - WINDOW_LN)), float(np.exp(-gap))],
+                        [float(np.exp(gap)), float(np.exp(gap + WINDOW_LN))]],
+            "expected_transmission": float(mean_transmission(zz)), "feature": int(cand)}

@@ -37,11 +37,11 @@ from ..catalogue.strengths import (expected_strengths, is_primary, multiplet_cod
                                  strength_assumption)
 from .table import append_at_z, fill, new_table, peaks_as_features
 from ..io.line_lists import read_line_list
-from .lyman_break import GAP_FWHM, WINDOW_LN, continuum_step, is_break, mean_transmission
+from .lyman_break import break_reading
 from .matching import assign, withdraw_unsupported
-from ..spectral.medium import air_to_vacuum
+from ..spectral.axis import observed_window, sorted_pixels, vacuum_ln
 from .redshift import _within, classify, refine, search_shift, solution_probability
-from .single_line import READING_STRENGTH, single_line_readings
+from .single_line import reading_candidate, readings_of
 from ..features.flags import Flag, has_flag, join_flags
 
 __all__ = ["identify", "Identification", "default_species", "read_line_list"]
@@ -122,18 +122,117 @@ def _observed(features, medium):
     c = u.Quantity(features["center"])
     err = u.Quantity(features["center_err"]).to_value(c.unit) if "center_err" in features.colnames \
         else np.full(len(c), np.nan)
-    lam = c.to(u.m, equivalencies=u.spectral()).value
-    if c.unit.is_equivalent(u.m) and medium == "air":
-        lam = air_to_vacuum(lam * u.m).to_value(u.m)
-    rel = np.abs(err / c.value)
-    return lam, rel
+    return np.exp(vacuum_ln(c, medium)), np.abs(err / c.value)
+
+
+@dataclass
+class _Evidence:
+    """What the features of one spectrum say, as arrays over the feature table."""
+    feats: QTable
+    feature_result: object      #: the `FeatureResult` (None for a peak list)
+    medium: str
+    R: float                    #: resolving power in use
+    y: np.ndarray               #: ln vacuum wavelength (m) of each feature
+    sy: np.ndarray              #: position error used in matching (ln)
+    sy_meas: np.ndarray         #: measured part of it
+    w: np.ndarray               #: weight, ln(1 + S/N)
+    snr: np.ndarray
+    kinds: np.ndarray
+    use: np.ndarray             #: evidence for the redshift (not on a masked sky line or band)
+    sky: np.ndarray
+    telluric: np.ndarray
+    flux_abs: np.ndarray
+    fwhm: np.ndarray            #: FWHM in ln
+    blend: np.ndarray
+    is_freq_axis: bool
+    regime: str
+    main_kind: str
+    window: tuple               #: observed window in ln (None for a peak list)
+
+
+@dataclass
+class _LineSet:
+    """The lines a solution can use: hydrogenic catalogue plus companions, with their priors."""
+    cat: QTable
+    x: np.ndarray               #: ln rest vacuum wavelength of the catalogue lines
+    strength: np.ndarray
+    group: np.ndarray
+    group_codes: np.ndarray
+    line_weight: np.ndarray
+    multiplet: np.ndarray
+    comp: list
+    x_comp: np.ndarray
+    st_comp: np.ndarray
+    xs: np.ndarray              #: catalogue and companion positions together (the search's)
+    st_s: np.ndarray
+    search_kw: dict
+    anchors: np.ndarray
+    r_grid: float
 
 
 def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
              kinds=("emission", "absorption"), snr=5.0, resolution=None, extra_lines=None,
              mask_sky=False, mask_telluric=False, calibration=2e-5, resolution_fraction=0.1,
              find_systems=True, companions=True):
-    """Identify the hydrogenic lines of a spectrum or a peak list; see the module docstring."""
+    """Identify the hydrogenic lines of a spectrum or a peak list; see the module docstring.
+
+    The steps: measure the features (`_evidence`), choose the lines of the regime
+    (`_line_set`), search the shift (`_search`), name a lone Lyα by its break
+    (`_break_named`), assign lines to features (`_assign_all`), look for a second
+    system (`_second_system`), measure the lines the solution predicts (`append_at_z`)
+    and write the result (`_result`).
+    """
+    ev = _evidence(data, kinds, snr, resolution, calibration, resolution_fraction,
+                   mask_sky, mask_telluric)
+    if zmin is None:
+        zmin = -0.005 if ev.regime == "radio" else 0.0
+    if zmax is None:
+        zmax = 0.005 if ev.regime == "radio" else 7.0
+    if z is not None:
+        zmin = zmax = z
+    names = list(species) if species else default_species(ev.regime)
+    ls = _line_set(ev, names, zmin, zmax, series, companions, extra_lines)
+    s_range = (np.log1p(zmin), np.log1p(zmax))
+    # measured fluxes should follow the expected strengths within a factor ~3 (emission) or
+    # ~10 (absorption, where saturation flattens them): rules of thumb of this tool
+    isig = np.log(3.0) if ev.main_kind == "emission" else np.log(10.0)
+    sols = _search(ev, ls, z, s_range, isig, calibration)
+    status = classify(sols)
+    readings, lyman = [], None
+    if status == "none" and z is None and len(ls.cat):
+        sols, status, readings, lyman = _break_named(ev, ls, sols, status, snr, s_range)
+    best_s = sols[0].s if sols else (np.log1p(z) if z is not None else None)
+    out, res, pixels = _assign_all(ev, ls, sols, status, best_s, z, extra_lines, snr,
+                                   (mask_sky, mask_telluric))
+    systems = []
+    if find_systems and z is None and status == "secure":
+        systems = _second_system(ev, ls, out, sols, s_range, isig, calibration)
+    if ev.feature_result is not None and best_s is not None and len(ls.cat) and len(ev.feats) and \
+            (status == "secure" or z is not None):
+        out = append_at_z(out, res.best, ls.cat, ls.x, ls.group, ls.line_weight >= 1, best_s,
+                          sols[0].s_err if sols else 0.0, pixels, ev.y, ev.fwhm,
+                          ev.main_kind, ev.window, ev.R, ev.medium, mask_sky and not ev.is_freq_axis,
+                          1.0 if z is not None else solution_probability(sols))
+    result = Identification(features=out, status=status, solutions=sols, lines=ls.cat,
+                            feature_result=ev.feature_result, systems=systems,
+                            single_line_readings=readings, lyman_break=lyman)
+    _set_shift(result, ev, sols, best_s, status, z)
+    cat = ls.cat
+    result.meta = {"medium": ev.medium, "regime": ev.regime,
+                   "species": [str(s) for s in sorted(set(cat["species"]))] if len(cat) else names,
+                   "resolution": ev.R, "calibration_term": calibration,
+                   "resolution_fraction": resolution_fraction, "z_range": [zmin, zmax],
+                   "z_fixed": z is not None, "sky_masked": bool(mask_sky),
+                   "telluric_masked": bool(mask_telluric),
+                   "companions": [c["name"] for c in ls.comp],
+                   "intensity_model": strength_assumption(ev.main_kind),
+                   "constants": cat.meta.get("constants"), "catalogue": dict(cat.meta)}
+    return result
+
+
+def _evidence(data, kinds, snr, resolution, calibration, resolution_fraction, mask_sky,
+              mask_telluric):
+    """Step 1: the features (measured here unless `data` is a peak list) and what they say."""
     from ..features.detect import find_features
     from ..io.read import is_peak_list
 
@@ -163,153 +262,168 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
         args = (feats["center"], feats["center_err"], feats["fwhm"])
         sky = sky_mask(*args, medium=medium, bands=False)
         telluric = sky_mask(*args, medium=medium, kind=feats["kind"], lines=False) & ~sky
-    reg = regime(lam) if len(lam) else "optical"
-    if zmin is None:
-        zmin = -0.005 if reg == "radio" else 0.0
-    if zmax is None:
-        zmax = 0.005 if reg == "radio" else 7.0
-    if z is not None:
-        zmin = zmax = z
-    names = list(species) if species else default_species(reg)
     y = np.log(lam) if len(lam) else np.zeros(0)
-    window = _observed_window(feature_result, y)
-    if len(lam):
-        # the whole observed window, not just the features' span: a line expected beyond the
-        # reddest (or bluest) feature and absent is evidence too
-        lo_obs, hi_obs = lam.min(), lam.max()
-        if window is not None:
-            lo_obs, hi_obs = min(lo_obs, np.exp(window[0])), max(hi_obs, np.exp(window[1]))
-        lam_rest_min = lo_obs / (1 + zmax) * (1 - 5e-3)
-        lam_rest_max = hi_obs / (1 + zmin) * (1 + 5e-3)
-    else:
-        lam_rest_min, lam_rest_max = 1e-10, 1e-5
-    lower, upper = _n_ranges(reg, lam_rest_min, lam_rest_max)
     # features on masked sky lines or telluric bands are no evidence for the redshift, nor
     # for the kind of spectrum (sky residuals come with either sign)
     use = ~((sky & mask_sky) | (telluric & mask_telluric))
     snr_arr = np.asarray(feats["snr"], dtype=float) if len(feats) else np.zeros(0)
     kinds_arr = np.asarray(feats["kind"]).astype(str) if len(feats) else np.zeros(0, str)
-    main_kind = _main_kind(snr_arr, kinds_arr, use)
+    flux_abs = np.abs(np.asarray(u.Quantity(feats["flux"]).value, dtype=float)) if len(feats) \
+        else np.zeros(0)
+    return _Evidence(
+        feats=feats, feature_result=feature_result, medium=medium, R=R, y=y, sy=sy,
+        sy_meas=sy_meas, w=np.log1p(np.clip(np.nan_to_num(snr_arr, nan=5.0), 0, 1e4)),
+        snr=snr_arr, kinds=kinds_arr, use=use, sky=sky, telluric=telluric, flux_abs=flux_abs,
+        fwhm=_width_ln(feats), blend=np.array([has_flag(f, Flag.BLEND) for f in feats["flags"]],
+                                              dtype=bool),
+        is_freq_axis=is_freq_axis, regime=regime(lam) if len(lam) else "optical",
+        main_kind=_main_kind(snr_arr, kinds_arr, use), window=observed_window(feature_result, y))
+
+
+def _line_set(ev, names, zmin, zmax, series, companions, extra_lines):
+    """Step 2: the catalogue of the regime over the rest range the window and z range allow."""
+    if len(ev.y):
+        # the whole observed window, not just the features' span: a line expected beyond the
+        # reddest (or bluest) feature and absent is evidence too
+        lam = np.exp(ev.y)
+        lo_obs, hi_obs = lam.min(), lam.max()
+        if ev.window is not None:
+            lo_obs, hi_obs = min(lo_obs, np.exp(ev.window[0])), max(hi_obs, np.exp(ev.window[1]))
+        lam_rest_min = lo_obs / (1 + zmax) * (1 - 5e-3)
+        lam_rest_max = hi_obs / (1 + zmin) * (1 + 5e-3)
+    else:
+        lam_rest_min, lam_rest_max = 1e-10, 1e-5
+    lower, upper = _n_ranges(ev.regime, lam_rest_min, lam_rest_max)
     # a slightly wider range and R on coarse grids, so that spectra of one survey share it
     q = 0.05
     lmin = float(np.exp(np.floor(np.log(lam_rest_min) / q) * q))
     lmax = float(np.exp(np.ceil(np.log(lam_rest_max) / q) * q))
-    r_grid = float(np.exp(np.round(np.log(R) / 0.1) * 0.1))
+    r_grid = float(np.exp(np.round(np.log(ev.R) / 0.1) * 0.1))
     cat, strength, group = _catalogue(tuple(names), tuple(lower), tuple(upper), r_grid, lmin, lmax,
-                                      main_kind, tuple(series) if series else None)
+                                      ev.main_kind, tuple(series) if series else None)
     keep = strength >= 1e-3
     cat, strength, group = cat[keep], strength[keep], group[keep]
     group_codes = np.unique(group, return_inverse=True)[1] if len(group) else np.zeros(0, int)
     line_weight = np.where(is_primary(cat), 1.0, 0.5) if len(cat) else np.zeros(0)
     multiplet = multiplet_codes(cat)
     x = np.log(cat["wavelength_vacuum"].to_value(u.m)) if len(cat) else np.zeros(0)
-    comp = _companions(companions and main_kind == "emission" and reg == "optical"
-                       and not is_freq_axis and len(cat) > 0, lmin, lmax, r_grid, extra_lines)
+    comp = _companions(companions and ev.main_kind == "emission" and ev.regime == "optical"
+                       and not ev.is_freq_axis and len(cat) > 0, lmin, lmax, r_grid, extra_lines)
     # the search sees the hydrogenic lines and the companions (COMPANION_WEIGHT, own groups of
     # one, so that they predict no missing lines, and out of the intensity check)
     nc = len(comp)
     x_comp = np.log([c["rest_vacuum_m"] for c in comp]) if nc else np.zeros(0)
     st_comp = np.array([c["strength"] for c in comp], dtype=float)
-    xs, st_s = np.concatenate([x, x_comp]), np.concatenate([strength, st_comp])
     search_kw = dict(group=_more_codes(group_codes, nc), multiplet=_more_codes(multiplet, nc),
                      line_weight=np.concatenate([line_weight, np.full(nc, COMPANION_WEIGHT)]),
                      intensity_strength=np.concatenate([strength, np.zeros(nc)]))
-    w = np.log1p(np.clip(np.nan_to_num(snr_arr, nan=5.0), 0, 1e4))
-    fwhm_feat = _width_ln(feats)
-    s_lo, s_hi = np.log1p(zmin), np.log1p(zmax)
-    anchors = np.flatnonzero(strength >= 0.02)
-    flux_abs = np.abs(np.asarray(u.Quantity(feats["flux"]).value, dtype=float)) if len(feats) \
-        else np.zeros(0)
-    # measured fluxes should follow the expected strengths within a factor ~3 (emission) or
-    # ~10 (absorption, where saturation flattens them): rules of thumb of this tool
-    isig = np.log(3.0) if main_kind == "emission" else np.log(10.0)
+    return _LineSet(cat=cat, x=x, strength=strength, group=group, group_codes=group_codes,
+                    line_weight=line_weight, multiplet=multiplet, comp=comp, x_comp=x_comp,
+                    st_comp=st_comp, xs=np.concatenate([x, x_comp]),
+                    st_s=np.concatenate([strength, st_comp]), search_kw=search_kw,
+                    anchors=np.flatnonzero(strength >= 0.02), r_grid=r_grid)
+
+
+def _search(ev, ls, z, s_range, isig, calibration):
+    """Step 3: the solutions, best first (searched, or refined at a fixed z)."""
+    use, R = ev.use, ev.R
     if z is None:
-        sols = search_shift(y[use], sy[use], w[use], xs, st_s, smin=s_lo, smax=s_hi,
-                            anchors=anchors if len(anchors) else None, window=window,
-                            flux=flux_abs[use], intensity_sigma=isig, fwhm_ln=1.0 / R,
-                            sy_fit=sy_meas[use], s_floor=calibration,
-                            half_width=fwhm_feat[use] / 2, **search_kw)
-        sols = [_reindex(s, np.flatnonzero(use)) for s in sols]
-    else:
-        sol = refine(np.log1p(z), y[use], sy[use], w[use], xs, st_s, np.ones(len(xs), bool),
-                     window=window, fwhm_ln=1.0 / R, half_width=fwhm_feat[use] / 2, **search_kw)
-        sol = _reindex(sol, np.flatnonzero(use))
-        sol.s = float(np.log1p(z))
-        sols = [sol] if sol.n_lines else []
-    status = classify(sols)
-    readings, lyman = [], None
-    if status == "none" and z is None and len(cat):
-        cand = _reading_candidate(use, kinds_arr, main_kind, snr_arr, snr)
-        readings = _readings(cand, use, snr_arr, snr, y, sy, x, strength, group, cat, comp,
-                             x_comp, s_lo, s_hi, window, main_kind) if cand is not None else []
-        if feature_result is not None and main_kind == "emission" and reg == "optical" \
-                and not is_freq_axis:
-            # the break is evidence of its own: the strongest few emission features are
-            # tried, not only the one clear enough to be read alone, down to a fitted S/N of
-            # 0.8 times the detection limit (a free width and baseline take 20-35 % of the
-            # matched-filter S/N the features were detected by)
-            em_ok = np.flatnonzero(use & (kinds_arr == "emission")
-                                   & (np.nan_to_num(snr_arr) >= 0.8 * snr))
-            pixels = _sorted_pixels(feature_result) if len(em_ok) else None
-            for c in em_ok[np.argsort(-snr_arr[em_ok])][:3]:
-                rd = readings if c == cand else _readings(
-                    c, use, snr_arr, snr, y, sy, x, strength, group, cat, comp, x_comp, s_lo,
-                    s_hi, window, main_kind)
-                lyman = _lyman_break(pixels, R, int(c), rd, y, fwhm_feat)
-                if lyman is not None:
-                    break
-        if lyman is not None:
-            # Lyα named by the continuum break at its foot: the z of that one line, refined
-            # with whatever else (companions, Lyβ) the catalogue puts in the window there
-            # (emission features only: a residual dip on the line's flank is not it)
-            em = use & (kinds_arr == "emission")
-            # the break names Lyα itself: He II 1215 (n = 4 -> 2), 0.4 Å away, is left out
-            lya_x = x[np.asarray(cat["label"]) == "Lyα"]
-            twin = np.zeros(len(xs), bool)
-            if len(lya_x):
-                twin[:len(x)] = (np.asarray(cat["label"]) != "Lyα") & \
-                    (np.min(np.abs(x[:, None] - lya_x[None, :]), axis=1) < 2e-3)
-            sol = refine(np.log1p(lyman["z"]), y[em], sy[em], w[em], xs, st_s,
-                         ~twin, window=window, fwhm_ln=1.0 / R,
-                         half_width=fwhm_feat[em] / 2, **search_kw)
-            sol = _reindex(sol, np.flatnonzero(em))
-            if any(i == lyman["feature"] and str(cat["label"][j]) == "Lyα"
-                   for i, j, _ in sol.matches if j < len(cat)):
-                sols, status, readings = [sol], "tentative", []
-                sol.status = status
-            else:
-                lyman = None
-    best_s = sols[0].s if sols else (np.log1p(z) if z is not None else None)
-    out = new_table(feats, sky, telluric, mask_sky, mask_telluric)
+        sols = search_shift(ev.y[use], ev.sy[use], ev.w[use], ls.xs, ls.st_s, smin=s_range[0],
+                            smax=s_range[1], anchors=ls.anchors if len(ls.anchors) else None,
+                            window=ev.window, flux=ev.flux_abs[use], intensity_sigma=isig,
+                            fwhm_ln=1.0 / R, sy_fit=ev.sy_meas[use], s_floor=calibration,
+                            half_width=ev.fwhm[use] / 2, **ls.search_kw)
+        return [_reindex(s, np.flatnonzero(use)) for s in sols]
+    sol = refine(np.log1p(z), ev.y[use], ev.sy[use], ev.w[use], ls.xs, ls.st_s,
+                 np.ones(len(ls.xs), bool), window=ev.window, fwhm_ln=1.0 / R,
+                 half_width=ev.fwhm[use] / 2, **ls.search_kw)
+    sol = _reindex(sol, np.flatnonzero(use))
+    sol.s = float(np.log1p(z))
+    return [sol] if sol.n_lines else []
+
+
+def _break_named(ev, ls, sols, status, snr, s_range):
+    """Step 4 (no solution): readings of the clearest line, and Lyα named by its break."""
+    use, kinds_arr, snr_arr, main_kind = ev.use, ev.kinds, ev.snr, ev.main_kind
+    y, sy, x, cat = ev.y, ev.sy, ls.x, ls.cat
+    s_lo, s_hi = s_range
+    lyman = None
+    cand = reading_candidate(use, kinds_arr, main_kind, snr_arr, snr)
+    readings = readings_of(cand, use, snr_arr, snr, y, sy, x, ls.strength, ls.group, cat, ls.comp,
+                         ls.x_comp, s_lo, s_hi, ev.window, main_kind) if cand is not None else []
+    if ev.feature_result is not None and main_kind == "emission" and ev.regime == "optical" \
+            and not ev.is_freq_axis:
+        # the break is evidence of its own: the strongest few emission features are
+        # tried, not only the one clear enough to be read alone, down to a fitted S/N of
+        # 0.8 times the detection limit (a free width and baseline take 20-35 % of the
+        # matched-filter S/N the features were detected by)
+        em_ok = np.flatnonzero(use & (kinds_arr == "emission")
+                               & (np.nan_to_num(snr_arr) >= 0.8 * snr))
+        pixels = sorted_pixels(ev.feature_result) if len(em_ok) else None
+        for c in em_ok[np.argsort(-snr_arr[em_ok])][:3]:
+            rd = readings if c == cand else readings_of(
+                c, use, snr_arr, snr, y, sy, x, ls.strength, ls.group, cat, ls.comp, ls.x_comp,
+                s_lo, s_hi, ev.window, main_kind)
+            lyman = break_reading(pixels, ev.R, int(c), rd, y, ev.fwhm)
+            if lyman is not None:
+                break
+    if lyman is None:
+        return sols, status, readings, None
+    # Lyα named by the continuum break at its foot: the z of that one line, refined
+    # with whatever else (companions, Lyβ) the catalogue puts in the window there
+    # (emission features only: a residual dip on the line's flank is not it)
+    em = use & (kinds_arr == "emission")
+    # the break names Lyα itself: He II 1215 (n = 4 -> 2), 0.4 Å away, is left out
+    lya_x = x[np.asarray(cat["label"]) == "Lyα"]
+    twin = np.zeros(len(ls.xs), bool)
+    if len(lya_x):
+        twin[:len(x)] = (np.asarray(cat["label"]) != "Lyα") & \
+            (np.min(np.abs(x[:, None] - lya_x[None, :]), axis=1) < 2e-3)
+    sol = refine(np.log1p(lyman["z"]), y[em], sy[em], ev.w[em], ls.xs, ls.st_s,
+                 ~twin, window=ev.window, fwhm_ln=1.0 / ev.R,
+                 half_width=ev.fwhm[em] / 2, **ls.search_kw)
+    sol = _reindex(sol, np.flatnonzero(em))
+    if any(i == lyman["feature"] and str(cat["label"][j]) == "Lyα"
+           for i, j, _ in sol.matches if j < len(cat)):
+        sol.status = "tentative"
+        return [sol], "tentative", [], lyman
+    return sols, status, readings, None
+
+
+def _assign_all(ev, ls, sols, status, best_s, z, extra_lines, snr, masks):
+    """Step 5: the identification table, every feature assigned a line or none."""
+    feats, y, sy, x, cat, R = ev.feats, ev.y, ev.sy, ls.x, ls.cat, ev.R
+    nc = len(ls.comp)
+    out = new_table(feats, ev.sky, ev.telluric, *masks)
     # companions (their typical strengths) and user lines (strength 1: the user expects them)
     # compete in the same assignment, so a weak hydrogenic line cannot take a feature that
     # one of them explains better
-    other = comp + [dict(line, source="user") for line in (extra_lines or [])]
+    other = ls.comp + [dict(line, source="user") for line in (extra_lines or [])]
     x_user = np.log([line["rest_vacuum_m"] for line in extra_lines]) if extra_lines else np.zeros(0)
-    x_all = np.concatenate([x, x_comp, x_user])
-    strength_assign = _defer_to_primary(x, strength, line_weight < 1, 1.0 / R)
-    strength_all = np.concatenate([strength_assign, st_comp, np.ones(len(x_user))])
-    blend = np.array([has_flag(f, Flag.BLEND) for f in feats["flags"]], dtype=bool)
-    group_all = np.concatenate([np.asarray(group, dtype=str),
+    x_all = np.concatenate([x, ls.x_comp, x_user])
+    strength_assign = _defer_to_primary(x, ls.strength, ls.line_weight < 1, 1.0 / R)
+    strength_all = np.concatenate([strength_assign, ls.st_comp, np.ones(len(x_user))])
+    group_all = np.concatenate([np.asarray(ls.group, dtype=str),
                                 np.array([f"companion|{k}" for k in range(nc)], dtype=str),
                                 np.array([f"user|{k}" for k in range(len(x_user))], dtype=str)])
     s_user = best_s if best_s is not None else 0.0
+    res, pixels = None, None
     if best_s is not None and status != "none" or (z is not None and best_s is not None):
         # masked features take part too: one may be named where the solution's other lines
         # predict a line above the detection limit (its sky or telluric flag stays)
         idx = np.arange(len(feats))
-        res = assign(y[idx], sy[idx], flux_abs[idx], blend[idx], x_all, strength_all, group_all,
-                     best_s, snr=snr_arr[idx], masked=~use[idx])
+        res = assign(y[idx], sy[idx], ev.flux_abs[idx], ev.blend[idx], x_all, strength_all,
+                     group_all, best_s, snr=ev.snr[idx], masked=~ev.use[idx])
         # a label is as likely as its line at this z times this z itself (1 when fixed)
         res.score = res.score * (1.0 if z is not None else solution_probability(sols))
-        _primary_in_blends(out, idx, res, y[idx], sy[idx], fwhm_feat[idx], best_s, x,
-                           line_weight < 1)
+        _primary_in_blends(out, idx, res, y[idx], sy[idx], ev.fwhm[idx], best_s, x,
+                           ls.line_weight < 1)
         # a secondary species is named only where its stronger lines are not missing
-        pixels = _sorted_pixels(feature_result) if feature_result is not None else None
-        withdraw_unsupported(res, y[idx], snr_arr[idx], x_all,
-                             np.concatenate([strength, st_comp, np.ones(len(x_user))]), group_all,
-                             best_s, window, 1.0 / R,
-                             np.concatenate([line_weight < 1, np.zeros(nc + len(x_user), bool)]),
+        pixels = sorted_pixels(ev.feature_result) if ev.feature_result is not None else None
+        withdraw_unsupported(res, y[idx], ev.snr[idx], x_all,
+                             np.concatenate([ls.strength, ls.st_comp, np.ones(len(x_user))]),
+                             group_all, best_s, ev.window, 1.0 / R,
+                             np.concatenate([ls.line_weight < 1, np.zeros(nc + len(x_user), bool)]),
                              detection_snr=snr,
                              pixels=None if pixels is None else pixels[0][np.isfinite(pixels[1])])
         fill(out, idx, res, cat, y[idx], best_s, other)
@@ -321,59 +435,53 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
         res.best = np.where(res.best >= 0, res.best + len(x) + nc, -1)
         res.alt_index[:] = -1
         fill(out, idx, res, cat, y, s_user, other)
-    systems = []
-    if find_systems and z is None and status == "secure":
-        rest = np.flatnonzero(use & (np.asarray(out["label"]) == "")
-                              & (np.asarray(out["user_line"]) == "")
-                              & (np.asarray(out["companion"]) == ""))
-        if len(rest) >= 3:
-            more = search_shift(y[rest], sy[rest], w[rest], x, strength, smin=s_lo, smax=s_hi,
-                                anchors=anchors if len(anchors) else None, n_solutions=3,
-                                window=window, flux=flux_abs[rest], intensity_sigma=isig,
-                                fwhm_ln=1.0 / R, group=group_codes, line_weight=line_weight,
-                                sy_fit=sy_meas[rest], s_floor=calibration, multiplet=multiplet,
-                                half_width=fwhm_feat[rest] / 2)
-            more = [_reindex(s, rest) for s in more]
-            # a second system must stand on its own: secure by the same rules, 4 lines or more,
-            # and not the first one again
-            if more and classify(more) == "secure" and more[0].n_lines >= 4 and \
-                    abs(more[0].s - sols[0].s) > 10 * max(sols[0].s_err, 1e-6):
-                systems.append(more[0])
-                res2 = assign(y[rest], sy[rest], flux_abs[rest], blend[rest], x, strength_assign,
-                              group, more[0].s, snr=snr_arr[rest])
-                _primary_in_blends(out, rest, res2, y[rest], sy[rest], fwhm_feat[rest],
-                                   more[0].s, x, line_weight < 1)
-                fill(out, rest, res2, cat, y[rest], more[0].s, None, system=2)
-    if feature_result is not None and best_s is not None and len(cat) and len(feats) and \
-            (status == "secure" or z is not None):
-        out = append_at_z(out, res.best, cat, x, group, line_weight >= 1, best_s,
-                          sols[0].s_err if sols else 0.0, pixels, y, fwhm_feat,
-                           main_kind, window, R, medium, mask_sky and not is_freq_axis,
-                           1.0 if z is not None else solution_probability(sols))
-    result = Identification(features=out, status=status, solutions=sols, lines=cat,
-                            feature_result=feature_result, systems=systems,
-                            single_line_readings=readings, lyman_break=lyman)
-    if best_s is not None and (status != "none" or z is not None):
-        zz = float(np.expm1(best_s))
-        zerr = sols[0].z_err if sols else 0.0
-        result.z, result.z_err = zz, float(zerr)
-        if is_freq_axis and reg == "radio":
-            result.velocity_convention = "radio"
-            result.velocity_kms = float(C_KMS * zz / (1 + zz))
-            result.velocity_err_kms = float(C_KMS * zerr / (1 + zz) ** 2)
-        else:
-            result.velocity_convention = "optical"
-            result.velocity_kms = float(C_KMS * zz)
-            result.velocity_err_kms = float(C_KMS * zerr)
-    result.meta = {"medium": medium, "regime": reg, "species": [str(s) for s in sorted(set(cat["species"]))]
-                   if len(cat) else names, "resolution": R, "calibration_term": calibration,
-                   "resolution_fraction": resolution_fraction, "z_range": [zmin, zmax],
-                   "z_fixed": z is not None, "sky_masked": bool(mask_sky),
-                   "telluric_masked": bool(mask_telluric),
-                   "companions": [c["name"] for c in comp],
-                   "intensity_model": strength_assumption(main_kind),
-                   "constants": cat.meta.get("constants"), "catalogue": dict(cat.meta)}
-    return result
+    return out, res, pixels
+
+
+def _second_system(ev, ls, out, sols, s_range, isig, calibration):
+    """Step 6: a second secure system among the features the first left unexplained."""
+    y, sy, x, cat = ev.y, ev.sy, ls.x, ls.cat
+    rest = np.flatnonzero(ev.use & (np.asarray(out["label"]) == "")
+                          & (np.asarray(out["user_line"]) == "")
+                          & (np.asarray(out["companion"]) == ""))
+    if len(rest) < 3:
+        return []
+    more = search_shift(y[rest], sy[rest], ev.w[rest], x, ls.strength, smin=s_range[0],
+                        smax=s_range[1], anchors=ls.anchors if len(ls.anchors) else None,
+                        n_solutions=3, window=ev.window, flux=ev.flux_abs[rest],
+                        intensity_sigma=isig, fwhm_ln=1.0 / ev.R, group=ls.group_codes,
+                        line_weight=ls.line_weight, sy_fit=ev.sy_meas[rest], s_floor=calibration,
+                        multiplet=ls.multiplet, half_width=ev.fwhm[rest] / 2)
+    more = [_reindex(s, rest) for s in more]
+    # a second system must stand on its own: secure by the same rules, 4 lines or more,
+    # and not the first one again
+    if not (more and classify(more) == "secure" and more[0].n_lines >= 4 and
+            abs(more[0].s - sols[0].s) > 10 * max(sols[0].s_err, 1e-6)):
+        return []
+    strength_assign = _defer_to_primary(x, ls.strength, ls.line_weight < 1, 1.0 / ev.R)
+    res2 = assign(y[rest], sy[rest], ev.flux_abs[rest], ev.blend[rest], x, strength_assign,
+                  ls.group, more[0].s, snr=ev.snr[rest])
+    _primary_in_blends(out, rest, res2, y[rest], sy[rest], ev.fwhm[rest], more[0].s, x,
+                       ls.line_weight < 1)
+    fill(out, rest, res2, cat, y[rest], more[0].s, None, system=2)
+    return [more[0]]
+
+
+def _set_shift(result, ev, sols, best_s, status, z):
+    """Step 8: z, its error and the velocity in the convention of the regime."""
+    if best_s is None or (status == "none" and z is None):
+        return
+    zz = float(np.expm1(best_s))
+    zerr = sols[0].z_err if sols else 0.0
+    result.z, result.z_err = zz, float(zerr)
+    if ev.is_freq_axis and ev.regime == "radio":
+        result.velocity_convention = "radio"
+        result.velocity_kms = float(C_KMS * zz / (1 + zz))
+        result.velocity_err_kms = float(C_KMS * zerr / (1 + zz) ** 2)
+    else:
+        result.velocity_convention = "optical"
+        result.velocity_kms = float(C_KMS * zz)
+        result.velocity_err_kms = float(C_KMS * zerr)
 
 
 def _companions(wanted, lam_min, lam_max, R, extra_lines):
@@ -457,110 +565,8 @@ def _main_kind(snr, kinds, use):
         power[use & (kinds == "emission")].sum() else "emission"
 
 
-def _reading_candidate(use, kinds_arr, main_kind, snr_arr, snr):
-    """The strongest clear feature (S/N 1.5 times the detection limit, above what noise
-    gives) of the main kind, or None."""
-    ok = use & (kinds_arr == main_kind) & (np.nan_to_num(snr_arr) >= 1.5 * snr)
-    if not np.any(ok):
-        return None
-    return int(np.flatnonzero(ok)[np.argmax(snr_arr[ok])])
 
 
-def _sorted_pixels(feature_result):
-    """The spectrum's pixels by ln(vacuum wavelength): (ln lambda, flux with masked pixels
-    NaN, noise, continuum), for `_lyman_break` and `feature_table.append_at_z`."""
-    spec = feature_result.spectrum
-    ln_axis = _vacuum_ln_axis(spec)
-    order = np.argsort(ln_axis)
-    flux = np.where(np.asarray(spec.mask, bool), np.nan, np.asarray(spec.flux.value, float))
-    return (ln_axis[order], flux[order], np.asarray(feature_result.noise, dtype=float)[order],
-            np.asarray(feature_result.continuum, dtype=float)[order])
-
-
-def _lyman_break(pixels, R, cand, readings, y, fwhm_ln):
-    """The continuum step at feature `cand` when it may be Lyα (a single-line reading) and
-    the continuum drops blueward of it (`lyman_break.is_break`); a dict for the result's
-    ``lyman_break`` (with the reading's ``z``), else None.  `pixels`: `_sorted_pixels`."""
-    lya = [r for r in readings if r["label"] == "Lyα" and r["species"] == "H I"]
-    if cand is None or not lya:
-        return None
-    ax, flux, sigma = pixels[:3]
-    # (features much broader than the windows are left in: the trace of a continuum that
-    # did not follow the step, not lines)
-    others = fwhm_ln < WINDOW_LN / 3
-    others[cand] = False
-    # other features' pixels left out (+/- 2 FWHM; unknown widths: 3 resolution elements)
-    half = 2.0 * np.where(fwhm_ln[others] > 0, fwhm_ln[others], 1.5 / R)
-    yo = y[others]
-    exclude = np.zeros(len(ax), bool)
-    for a, b in zip(np.searchsorted(ax, yo - half), np.searchsorted(ax, yo + half)):
-        exclude[a:b] = True
-    width = float(fwhm_ln[cand]) or 1.0 / R
-    step = continuum_step(ax, flux, sigma, float(y[cand]), width, exclude=exclude)
-    if not is_break(step):
-        return None
-    zz = lya[0]["z"]
-    gap = GAP_FWHM * width
-    return {"z": zz, "ratio": step["ratio"], "ratio_err": step["ratio_err"],
-            "continuum_snr": step["red_snr"], "blue_mean": step["blue_mean"],
-            "red_mean": step["red_mean"],
-            # the windows as ratios to the line's position: blue (lo, hi), red (lo, hi)
-            "windows": [[float(np.exp(-gap - WINDOW_LN)), float(np.exp(-gap))],
-                        [float(np.exp(gap)), float(np.exp(gap + WINDOW_LN))]],
-            "expected_transmission": float(mean_transmission(zz)), "feature": int(cand)}
-
-
-def _readings(i, use, snr_arr, snr, y, sy, x, strength, group, cat, comp, x_comp, s_lo, s_hi,
-              window, main_kind):
-    """Single-line readings of feature `i` (`_reading_candidate`) against the strong
-    hydrogenic and companion lines."""
-    nc = len(comp)
-    xs = np.concatenate([x, x_comp])
-    # companions of one ion form a group ([O III] 4960 predicts 5008 at three times its
-    # flux); their typical fluxes set the ratios
-    ion = [c["name"].rsplit(" ", 1)[0] for c in comp]
-    top = {}
-    for c, name in zip(comp, ion):
-        top[name] = max(top.get(name, 0.0), c["strength"])
-    h_st = np.asarray(strength, dtype=float)
-    if main_kind == "emission":
-        # Lyβ and higher seen in emission are weak: converted to Balmer lines and Lyα in
-        # Case B, and beyond z ~ 2 absorbed by the Lyα forest; they neither strike a Lyα
-        # reading out nor are read themselves
-        high_lyman = (np.asarray(cat["n_lower"]) == 1) & (np.asarray(cat["n_upper"]) > 2)
-        h_st = np.where(high_lyman, 0.0, h_st)
-    st = np.concatenate([h_st, [c["strength"] / top[name] if top[name] > 0 else 0.0
-                                for c, name in zip(comp, ion)]])
-    gr = np.concatenate([np.asarray(group, dtype=str), [f"companion|{name}" for name in ion]])
-    # read as the strong ones only: strong in their group, and (companions) strong beside H
-    readable = (st >= READING_STRENGTH) & np.concatenate(
-        [np.ones(len(x), bool), np.array([c["strength"] >= READING_STRENGTH for c in comp], bool)])
-    labels = np.concatenate([np.asarray(cat["label"], dtype=str), [c["name"] for c in comp]])
-    spc = np.concatenate([np.asarray(cat["species"], dtype=str), [""] * nc])
-    found = np.flatnonzero(use)
-    loc = int(np.searchsorted(found, i))
-    return single_line_readings(y[found], sy[found], snr_arr[found], loc, xs, st, gr, labels,
-                                spc, smin=s_lo, smax=s_hi, window=window, detection_snr=snr,
-                                readable=readable)
-
-
-def _vacuum_ln_axis(spec):
-    """ln of the vacuum wavelength (m) of every pixel of a prepared spectrum."""
-    lam = spec.axis.to_value(u.m, equivalencies=u.spectral())
-    if spec.is_wavelength and spec.medium == "air":
-        lam = air_to_vacuum(lam * u.m).to_value(u.m)
-    return np.log(lam)
-
-
-def _observed_window(feature_result, y):
-    """ln(lambda) range searched for features: the spectrum's, else the features' span."""
-    if feature_result is not None:
-        spec = feature_result.spectrum
-        ln_lam = _vacuum_ln_axis(spec)[~spec.mask]
-        return float(ln_lam.min()), float(ln_lam.max())
-    if len(y):
-        return float(y.min() - 0.01), float(y.max() + 0.01)
-    return None
 
 
 def _reindex(sol, idx):

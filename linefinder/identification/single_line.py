@@ -18,7 +18,7 @@ import numpy as np
 
 from .redshift import _nearest
 
-__all__ = ["single_line_readings", "READING_STRENGTH", "STRIKE_FACTOR"]
+__all__ = ["reading_candidate", "readings_of", "single_line_readings", "READING_STRENGTH", "STRIKE_FACTOR"]
 
 READING_STRENGTH = 0.3   # strong lines only: the usual single-line readings
 STRIKE_FACTOR = 2.0      # an absent line predicted at this many times the detection limit
@@ -67,3 +67,46 @@ def single_line_readings(y, sy, snr, candidate, x, strength, group, labels, spec
     for r in out:
         uniq.setdefault((r["label"], r["species"], round(r["z"], 3)), r)
     return sorted(uniq.values(), key=lambda r: r["z"])
+
+
+def reading_candidate(use, kinds_arr, main_kind, snr_arr, snr):
+    """The strongest clear feature (S/N 1.5 times the detection limit, above what noise
+    gives) of the main kind, or None."""
+    ok = use & (kinds_arr == main_kind) & (np.nan_to_num(snr_arr) >= 1.5 * snr)
+    if not np.any(ok):
+        return None
+    return int(np.flatnonzero(ok)[np.argmax(snr_arr[ok])])
+
+
+def readings_of(i, use, snr_arr, snr, y, sy, x, strength, group, cat, comp, x_comp, s_lo, s_hi,
+              window, main_kind):
+    """Single-line readings of feature `i` (`reading_candidate`) against the strong
+    hydrogenic and companion lines."""
+    nc = len(comp)
+    xs = np.concatenate([x, x_comp])
+    # companions of one ion form a group ([O III] 4960 predicts 5008 at three times its
+    # flux); their typical fluxes set the ratios
+    ion = [c["name"].rsplit(" ", 1)[0] for c in comp]
+    top = {}
+    for c, name in zip(comp, ion):
+        top[name] = max(top.get(name, 0.0), c["strength"])
+    h_st = np.asarray(strength, dtype=float)
+    if main_kind == "emission":
+        # Lyβ and higher seen in emission are weak: converted to Balmer lines and Lyα in
+        # Case B, and beyond z ~ 2 absorbed by the Lyα forest; they neither strike a Lyα
+        # reading out nor are read themselves
+        high_lyman = (np.asarray(cat["n_lower"]) == 1) & (np.asarray(cat["n_upper"]) > 2)
+        h_st = np.where(high_lyman, 0.0, h_st)
+    st = np.concatenate([h_st, [c["strength"] / top[name] if top[name] > 0 else 0.0
+                                for c, name in zip(comp, ion)]])
+    gr = np.concatenate([np.asarray(group, dtype=str), [f"companion|{name}" for name in ion]])
+    # read as the strong ones only: strong in their group, and (companions) strong beside H
+    readable = (st >= READING_STRENGTH) & np.concatenate(
+        [np.ones(len(x), bool), np.array([c["strength"] >= READING_STRENGTH for c in comp], bool)])
+    labels = np.concatenate([np.asarray(cat["label"], dtype=str), [c["name"] for c in comp]])
+    spc = np.concatenate([np.asarray(cat["species"], dtype=str), [""] * nc])
+    found = np.flatnonzero(use)
+    loc = int(np.searchsorted(found, i))
+    return single_line_readings(y[found], sy[found], snr_arr[found], loc, xs, st, gr, labels,
+                                spc, smin=s_lo, smax=s_hi, window=window, detection_snr=snr,
+                                readable=readable)

@@ -4,13 +4,15 @@
 axis, flux, uncertainty, mask, medium, resolving power) and its preparation;
 `medium` converts between air and vacuum (Edlén, Ciddor, and the conventional
 split by wavelength); `doppler` converts between redshift, velocity and
-wavelength factors in the usual conventions.
+wavelength factors in the usual conventions; `axis` turns any observed axis
+into ln(vacuum wavelength), the one scale on which features meet lines.
 """
 
 from .spectrum import SpectrumData, prepare, segments, from_specutils
 from .medium import AIR_FORMULAS, vacuum_to_air, air_to_vacuum, refractive_index, conventional_wavelength
+from .axis import vacuum_ln, vacuum_ln_axis
 from .doppler import VELOCITY_CONVENTIONS, wavelength_factor, velocity_from_factor, describe_shift
 
-__all__ = ["SpectrumData", "prepare", "segments", "from_specutils", "AIR_FORMULAS", "vacuum_to_air",
+__all__ = ["vacuum_ln", "vacuum_ln_axis", "SpectrumData", "prepare", "segments", "from_specutils", "AIR_FORMULAS", "vacuum_to_air",
            "air_to_vacuum", "refractive_index", "conventional_wavelength", "VELOCITY_CONVENTIONS",
            "wavelength_factor", "velocity_from_factor", "describe_shift"]
