@@ -11,6 +11,8 @@ from linefinder.features.profiles import GAUSS_FWHM, GroupProblem, fit_groups
 from linefinder.identification.redshift import weighted_shift
 from linefinder.spectral.spectrum import SpectrumData
 
+from helpers import suite_spectrum
+
 
 def _two_gauss(x, a1, m1, s1, a2, m2, s2, c0, c1):
     return (a1 * np.exp(-0.5 * ((x - m1) / s1) ** 2) + a2 * np.exp(-0.5 * ((x - m2) / s2) ** 2)
@@ -179,10 +181,7 @@ def test_lines_found_again_after_voigt_lines_are_held_fixed():
     # an invented Lyman absorber (z = 3.84, R = 1600): the saturated trough below the series
     # limit is fitted as Voigt and held fixed; every strong isolated Lyman line must still be
     # detected afterwards (the residual weights must not hide the not-yet-fitted lines)
-    from linefinder.simulate.suite import make_spectrum, random_parameters
-
-    rng = np.random.default_rng([2, 140, 0])
-    spec, truth = make_spectrum(rng, **random_parameters(rng), max_pixels=150000)
+    spec, truth = suite_spectrum(2, 140)
     fr = find_features(spec)
     centres = fr.features["center"].to_value(u.AA)
     strong = [l for l in truth["lines"] if l["label"] in ("Lyα", "Lyβ", "Lyγ", "Lyδ", "Lyε")]
@@ -219,10 +218,7 @@ def test_resolved_members_beside_the_merged_series_limit_are_found(index, first,
     # stand clear; each of them must be found on its own, neither swallowed by the trough
     # nor split into a pair that loses it
     from linefinder.catalogue.build import build_catalogue
-    from linefinder.simulate.suite import make_spectrum, random_parameters
-
-    gen = np.random.default_rng([2, index, 0])
-    spec, truth = make_spectrum(gen, **random_parameters(gen), max_pixels=150_000)
+    spec, truth = suite_spectrum(2, index)
     t = find_features(spec).features
     found = t["center"].to_value(u.AA)
     cat = build_catalogue("H", (2, 2), (first, last), z=truth["z"])

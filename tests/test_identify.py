@@ -12,7 +12,9 @@ from linefinder.io.line_lists import read_line_list
 from linefinder.io.read import read_input
 from linefinder.simulate.scenarios import sample_path
 from linefinder.spectral.spectrum import SpectrumData
-from linefinder.simulate.suite import make_spectrum, random_parameters
+from linefinder.simulate.suite import make_spectrum
+
+from helpers import suite_spectrum
 
 
 def _correct(z, z0):
@@ -20,10 +22,9 @@ def _correct(z, z0):
 
 
 def _suite_spectrum(seed, index):
-    """Spectrum `index` of the benchmark suite's seed `seed` (invented data, as
-    benchmarks/bench_identify.py makes it), identified as there; (result, truth)."""
-    gen = np.random.default_rng([seed, index, 0])
-    spec, truth = make_spectrum(gen, **random_parameters(gen), max_pixels=150_000)
+    """Spectrum `index` of the benchmark suite's seed `seed` (invented data, frozen in
+    tests/data/suite/), identified as benchmarks/bench_identify.py does; (result, truth)."""
+    spec, truth = suite_spectrum(seed, index)
     return identify(spec, mask_sky=True), truth
 
 
