@@ -55,11 +55,7 @@ def identify(data, flux=None, uncertainty=None, **options):
     and the identification options (species, z, zmin, zmax, snr, resolution,
     mask_sky ...; see `linefinder.identification.identify`) are keywords.
     """
-    read_options = {k: options.pop(k) for k in _READ_OPTIONS if k in options}
-    medium = read_options.get("medium") or "vacuum"
-    spec = as_spectrum(data, flux, uncertainty, **{**read_options, "medium": medium}) \
-        if not isinstance(data, (str, PathLike)) else as_spectrum(data, **read_options)
-    return _identify(spec, **options)
+    return _identify(_input(data, flux, uncertainty, options), **options)
 
 
 def find_features(data, flux=None, uncertainty=None, **options):
@@ -70,12 +66,15 @@ def find_features(data, flux=None, uncertainty=None, **options):
     """
     from .features.detect import find_features as _find
 
-    read_options = {k: options.pop(k) for k in _READ_OPTIONS if k in options}
-    if isinstance(data, (str, PathLike)):
-        spec = as_spectrum(data, **read_options)
-    else:
-        spec = as_spectrum(data, flux, uncertainty, medium=read_options.get("medium") or "vacuum")
+    spec = _input(data, flux, uncertainty, options)
     if is_peak_list(spec):
         raise SpectrumFormatError(f"{data}: holds a peak list; features are found in spectra")
     return _find(spec, **options)
 
+
+def _input(data, flux, uncertainty, options):
+    """The spectrum or peak list of a call; the reading options are taken out of `options`."""
+    read_options = {k: options.pop(k) for k in _READ_OPTIONS if k in options}
+    if isinstance(data, (str, PathLike)):
+        return as_spectrum(data, **read_options)
+    return as_spectrum(data, flux, uncertainty, medium=read_options.get("medium") or "vacuum")

@@ -1,4 +1,8 @@
-"""Readers on the layouts observed spectra come in (files in tests/data/real/, origin in its README)."""
+"""Readers on the layouts observed spectra come in.
+
+Source: the observed files of tests/data/real/ (origin of each in its README); the values
+checked are the files' own header and table contents.
+"""
 
 from pathlib import Path
 
