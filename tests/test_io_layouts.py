@@ -77,3 +77,14 @@ def test_units_stated_only_in_a_free_text_comment():
     assert spec.axis.unit == u.AA
     assert spec.flux.unit.is_equivalent(u.erg / u.s / u.cm ** 2 / u.AA)
     assert spec.meta["axis_unit_source"] == "comment"
+
+
+@pytest.mark.parametrize("command", ["peaks", "identify", "redshift"])
+def test_list_works_on_every_command_before_any_selection(command, capsys):
+    from linefinder.cli.main import main
+
+    assert main([command, str(REAL / "desi_coadd_sv3_dark_26065.fits"), "--list"]) == 0
+    out = capsys.readouterr().out
+    assert "5 spectra, arms B, R, Z joined" in out and "--index 3: TARGETID=616088619186127404 OBJTYPE=SKY" in out
+    assert main([command, str(REAL / "sdss_ngc3073.fits"), "--list"]) == 0
+    assert "default: HDU 1 'COADD' (the coadd" in capsys.readouterr().out

@@ -3,7 +3,7 @@
 import json
 import sys
 
-from .spectrum import add_spectrum_options, kinds_from_args, load_input
+from .spectrum import add_spectrum_options, kinds_from_args, list_input, load_input
 from ..identification.pipeline import identify
 from ..io.line_lists import read_line_list
 from ..report.summary import lyman_break_text, summary, write_report
@@ -50,6 +50,8 @@ def _print_summary(res, s, source):
 
 
 def _cmd_identify(args):
+    if list_input(args):
+        return 0
     res = _run(args)
     s = summary(res)
     if args.output:
@@ -65,6 +67,8 @@ def _cmd_identify(args):
 
 
 def _cmd_redshift(args):
+    if list_input(args):
+        return 0
     res = _run(args)
     s = summary(res)
     out = {"z": s["z"], "z_err": s["z_err"], "status": s["status"], "velocity_kms": s["velocity_kms"],

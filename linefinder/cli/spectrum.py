@@ -9,7 +9,7 @@ from ..errors import SpectrumFormatError
 from ..features.detect import FEATURE_COLUMNS, find_features
 from ..io.read import describe_input, is_peak_list, read_input
 
-__all__ = ["register", "add_spectrum_options", "load_input", "features_in_unit", "kinds_from_args"]
+__all__ = ["register", "add_spectrum_options", "list_input", "load_input", "features_in_unit", "kinds_from_args"]
 
 
 def add_spectrum_options(p):
@@ -33,6 +33,16 @@ def kinds_from_args(args):
     if args.absorption and not args.emission:
         return ("absorption",)
     return ("emission", "absorption")
+
+
+def list_input(args):
+    """With --list: print what the file holds (before any --index or --hdu is applied); True
+    when it did, and the command stops there."""
+    if not getattr(args, "list", False):
+        return False
+    for line in describe_input(args.spectrum):
+        print(line)
+    return True
 
 
 def load_input(args):
@@ -85,9 +95,7 @@ def features_in_unit(table, unit):
 
 
 def _cmd_peaks(args):
-    if args.list:
-        for line in describe_input(args.spectrum):
-            print(line)
+    if list_input(args):
         return 0
     data = load_input(args)
     if is_peak_list(data):

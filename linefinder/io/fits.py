@@ -178,10 +178,28 @@ def describe_fits(path):
             shape = None if h.data is None else (np.shape(h.data) if not hasattr(h, "columns")
                                                  else f"{len(h.data)} rows: {', '.join(h.columns.names)}")
             lines.append(f"HDU {i} {h.name!r} {kind} {shape}")
+        arms = _arms(hdul)
+        if arms:
+            rows = np.atleast_2d(hdul[f"{arms[0]}_FLUX"].data).shape[0]
+            lines.append(f"{rows} spectra, arms {', '.join(a.upper() for a in arms)} joined "
+                         "(choose with --index):")
+            fm = hdul["FIBERMAP"].data if "FIBERMAP" in hdul else None
+            for r in range(rows):
+                what = ""
+                if fm is not None and r < len(fm):
+                    what = " ".join(f"{c}={fm[c][r]}" for c in ("TARGETID", "OBJTYPE")
+                                    if c in fm.columns.names)
+                lines.append(f"  --index {r}: {what}".rstrip())
+            return lines
         imgs = _spectrum_images(hdul)
-        tabs = _spectrum_tables(hdul)
+        all_tabs = _spectrum_tables(hdul)
+        tabs = _preferred_tables(hdul, all_tabs)
         n = sum((hdul[i].data.shape[0] if hdul[i].data.ndim == 2 else 1) for i in imgs)
         n += sum(_table_count(hdul[i]) for i in tabs)
+        if len(tabs) < len(all_tabs):
+            lines.append(f"default: HDU {tabs[0]} {hdul[tabs[0]].name!r}"
+                         + (" (the coadd; the other tables are single exposures, --hdu N reads one)"
+                            if _name(hdul[tabs[0]]) == "coadd" else " (the other tables hold the same data)"))
         lines.append(f"{n} spectrum/spectra readable (choose with --hdu and --index)")
     return lines
 
