@@ -1,4 +1,4 @@
-"""Companion lines: the strong non-hydrogenic emission lines of ionised gas.
+"""Companion lines: the strong non-hydrogenic lines that come with hydrogen's.
 
 In the emission spectra of H II regions, star-forming galaxies and active
 nuclei the hydrogen lines come with forbidden and resonance lines of O, N, S,
@@ -7,6 +7,14 @@ and [S II] lines beside it, H-beta by the [O III] doublet, Ly-alpha by C IV
 and N V.  identify uses these lines as evidence for the redshift (as much
 as a hydrogen line's, but a solution needs a hydrogenic line of its own), and reports features they explain in a column of their own, apart from
 the hydrogenic identifications.
+
+Absorption spectra have theirs: the stellar lines of galaxies and stars
+(`STELLAR_LINES`: Ca II H and K, Ca I 4227, the G band, Mg b, Fe 5270, Na D,
+the Ca II infrared triplet; He I in hot stars), used the same way when the
+spectrum's features are mainly absorption.  A Balmer line of a galaxy's
+starlight is named by the K line, Mg b and Na D beside it, and high Balmer
+members laid on a forest of metal lines are not taken for a series: the
+metal lines have names of their own.
 
 Rest wavelengths are vacuum Å, NIST ASD values recalled from memory to the
 digits shown.  The typical fluxes (relative to H-beta for the optical lines,
@@ -18,7 +26,7 @@ the fluxes of companion lines never enter the intensity check of a solution.
 
 import numpy as np
 
-__all__ = ["COMPANION_LINES", "companion_lines"]
+__all__ = ["COMPANION_LINES", "STELLAR_LINES", "companion_lines"]
 
 # name: (vacuum Å, "opt" relative to H-beta | "uv" relative to Ly-alpha, typical flux)
 COMPANION_LINES = {
@@ -35,20 +43,34 @@ COMPANION_LINES = {
     "[S II] 6733": (6732.67, "opt", 0.4), "[Ar III] 7138": (7137.77, "opt", 0.1),
     "[S III] 9071": (9071.1, "opt", 0.2), "[S III] 9533": (9533.2, "opt", 0.5),
 }
+# absorption: name: (vacuum Å, typical depth relative to H-alpha's, rule of thumb of this tool
+# for the integrated light of galaxies and for stars; a line's absence costs nothing)
+STELLAR_LINES = {
+    "Ca II K": (3934.78, 0.8), "Ca II H": (3969.59, 0.6), "Ca I 4227": (4227.92, 0.2),
+    "G band 4306": (4305.6, 0.3), "He I 4027": (4027.33, 0.1), "He I 4472": (4472.73, 0.15),
+    "He I 4922": (4923.30, 0.1), "Mg b 5169": (5168.76, 0.3), "Mg b 5174": (5174.13, 0.35),
+    "Mg b 5185": (5185.05, 0.4), "Fe 5270": (5270.9, 0.2), "Na D 5892": (5891.58, 0.3),
+    "Na D 5898": (5897.56, 0.25), "He I 5877": (5877.25, 0.15), "He I 6680": (6679.99, 0.1),
+    "Ca II 8500": (8500.36, 0.25), "Ca II 8544": (8544.44, 0.35), "Ca II 8665": (8664.52, 0.3),
+}
 # Case B H-alpha / H-beta (the Balmer strengths of identify are relative to H-alpha)
 _HALPHA_HBETA = 2.86
 
 
-def companion_lines(lam_min_m, lam_max_m, resolution):
+def companion_lines(lam_min_m, lam_max_m, resolution, kind="emission"):
     """Companion lines with rest wavelength in [lam_min_m, lam_max_m] (vacuum, m).
 
     Lines closer than one resolution element (1/R in ln lambda) are merged into
     one at their flux-weighted mean position, named by both (``[O II]
     3727+3730``), as the spectrum shows them.  Returns a list of dicts with
     ``name``, ``rest_vacuum_m`` and ``strength`` (on the scale of identify's
-    hydrogen strengths: H-alpha and Ly-alpha 1)."""
-    rows = sorted((aa * 1e-10, name, flux / _HALPHA_HBETA if band == "opt" else flux)
-                  for name, (aa, band, flux) in COMPANION_LINES.items())
+    hydrogen strengths: H-alpha and Ly-alpha 1).  `kind`: "emission" (the lines of
+    ionised gas) or "absorption" (`STELLAR_LINES`)."""
+    if kind == "absorption":
+        rows = sorted((aa * 1e-10, name, depth) for name, (aa, depth) in STELLAR_LINES.items())
+    else:
+        rows = sorted((aa * 1e-10, name, flux / _HALPHA_HBETA if band == "opt" else flux)
+                      for name, (aa, band, flux) in COMPANION_LINES.items())
     merged = []
     for lam, name, st in rows:
         if merged and np.log(lam / merged[-1]["rest_vacuum_m"]) < 1.0 / resolution:

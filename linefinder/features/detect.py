@@ -49,24 +49,11 @@ class FeatureResult:
     continuum: np.ndarray
     noise: np.ndarray
     meta: dict = field(default_factory=dict)
-
-
-
-
-
-
-
-
-
-
-
-
-
-
+    scan: object = None     #: the scale-space scan (`scales.ScaleScan`) where one was made
 
 
 def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorption"),
-                  knot_px=None, min_separation_px=None):
+                  knot_px=None, min_separation_px=None, detector="profiles"):
     """Find and measure features; returns a `FeatureResult`.
 
     Parameters
@@ -76,7 +63,15 @@ def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorpt
     resolution : resolving power R; default from the file, else estimated
     kinds : which of "emission", "absorption" to report
     knot_px : continuum knot spacing in pixels (default: from the line widths)
+    detector : "profiles" (this module: continuum, matched filter, profile fits) or
+        "scales" (`scale_detect`: scale-space scan and one joint linear fit)
     """
+    if detector == "scales":
+        from .scale_detect import find_features_scales
+
+        return find_features_scales(spec, snr=snr, resolution=resolution, kinds=kinds)
+    if detector != "profiles":
+        raise ValueError(f"unknown detector {detector!r}: 'profiles' or 'scales'")
     spec = prepare(spec)
     x_all = spec.axis.value
     y_all = spec.flux.value
@@ -143,11 +138,6 @@ def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorpt
                        "spike_pixels": spike_pixels})
     return FeatureResult(features=table, spectrum=spec, continuum=cont_all, noise=sig_all,
                          meta=dict(table.meta))
-
-
-
-
-
 
 
 def _segment(x, y, sig, good, dx, fwhm_px, threshold, kinds, knot_px, offset, *, blue_first=True):

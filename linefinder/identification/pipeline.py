@@ -31,6 +31,7 @@ from astropy.table import QTable
 from ..physics import constants as K
 from ..catalogue.build import build_catalogue
 from ..catalogue.companions import companion_lines
+from ..features.scales import scan_scales
 from ..catalogue.contaminants import sky_mask
 from ..spectral.doppler import C_KMS
 from ..catalogue.strengths import (expected_strengths, is_primary, multiplet_codes,
@@ -42,6 +43,7 @@ from .matching import assign, withdraw_unsupported
 from ..spectral.axis import observed_window, sorted_pixels, vacuum_ln
 from .redshift import _within, classify, refine, search_shift, solution_probability
 from .single_line import reading_candidate, readings_of
+from .pixel_check import STATUS_ORDER, PixelReader, capped, support_status
 from ..features.flags import Flag, has_flag, join_flags
 
 __all__ = ["identify", "Identification", "default_species", "read_line_list"]
@@ -49,6 +51,9 @@ __all__ = ["identify", "Identification", "default_species", "read_line_list"]
 # evidence of a companion match relative to a hydrogen line's: full weight gave more named lines
 # at equal purity than half on the synthetic suite (benchmarks/); a rule of this tool
 COMPANION_WEIGHT = 1.0
+# a secondary species' line on a primary line counts this much of its strength (`_shadowed`);
+# a rule of this tool
+SHADOW_WEIGHT = 0.1
 XRAY_IONS = ["C VI", "N VII", "O VIII", "Ne X", "Mg XII", "Si XIV", "S XVI", "Ar XVIII", "Ca XX",
              "Fe XXVI", "Ni XXVIII"]
 
@@ -173,7 +178,7 @@ class _LineSet:
 def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
              kinds=("emission", "absorption"), snr=5.0, resolution=None, extra_lines=None,
              mask_sky=False, mask_telluric=False, calibration=2e-5, resolution_fraction=0.1,
-             find_systems=True, companions=True):
+             find_systems=True, companions=True, detector="profiles"):
     """Identify the hydrogenic lines of a spectrum or a peak list; see the module docstring.
 
     The steps: measure the features (`_evidence`), choose the lines of the regime
@@ -183,7 +188,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     and write the result (`_result`).
     """
     ev = _evidence(data, kinds, snr, resolution, calibration, resolution_fraction,
-                   mask_sky, mask_telluric)
+                   mask_sky, mask_telluric, detector)
     if zmin is None:
         zmin = -0.005 if ev.regime == "radio" else 0.0
     if zmax is None:
@@ -198,6 +203,9 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     isig = np.log(3.0) if ev.main_kind == "emission" else np.log(10.0)
     sols = _search(ev, ls, z, s_range, isig, calibration)
     status = classify(sols)
+    broken = None
+    if ev.feature_result is not None and z is None and len(ls.cat) and len(ev.y):
+        sols, status, broken = _pixels(ev, ls, sols, s_range)
     readings, lyman = [], None
     if status == "none" and z is None and len(ls.cat):
         sols, status, readings, lyman = _break_named(ev, ls, sols, status, snr, s_range)
@@ -213,6 +221,8 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                           sols[0].s_err if sols else 0.0, pixels, ev.y, ev.fwhm,
                           ev.main_kind, ev.window, ev.R, ev.medium, mask_sky and not ev.is_freq_axis,
                           1.0 if z is not None else solution_probability(sols))
+    if broken:
+        out = _drop_unsupported(out, broken)
     result = Identification(features=out, status=status, solutions=sols, lines=ls.cat,
                             feature_result=ev.feature_result, systems=systems,
                             single_line_readings=readings, lyman_break=lyman)
@@ -231,7 +241,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
 
 
 def _evidence(data, kinds, snr, resolution, calibration, resolution_fraction, mask_sky,
-              mask_telluric):
+              mask_telluric, detector="profiles"):
     """Step 1: the features (measured here unless `data` is a peak list) and what they say."""
     from ..features.detect import find_features
     from ..io.read import is_peak_list
@@ -242,7 +252,8 @@ def _evidence(data, kinds, snr, resolution, calibration, resolution_fraction, ma
         medium = data.meta.get("medium", "vacuum")
         R = resolution or data.meta.get("resolution")
     else:
-        feature_result = find_features(data, snr=snr, resolution=resolution, kinds=kinds)
+        feature_result = find_features(data, snr=snr, resolution=resolution, kinds=kinds,
+                                       detector=detector)
         feats = feature_result.features.copy()
         medium = feature_result.meta["medium"]
         R = feature_result.meta.get("resolution")
@@ -303,12 +314,13 @@ def _line_set(ev, names, zmin, zmax, series, companions, extra_lines):
                                       ev.main_kind, tuple(series) if series else None)
     keep = strength >= 1e-3
     cat, strength, group = cat[keep], strength[keep], group[keep]
+    strength = _shadowed(cat, strength, ev.fwhm[ev.use] if len(ev.fwhm) else np.zeros(0), ev.R)
     group_codes = np.unique(group, return_inverse=True)[1] if len(group) else np.zeros(0, int)
     line_weight = np.where(is_primary(cat), 1.0, 0.5) if len(cat) else np.zeros(0)
     multiplet = multiplet_codes(cat)
     x = np.log(cat["wavelength_vacuum"].to_value(u.m)) if len(cat) else np.zeros(0)
-    comp = _companions(companions and ev.main_kind == "emission" and ev.regime == "optical"
-                       and not ev.is_freq_axis and len(cat) > 0, lmin, lmax, r_grid, extra_lines)
+    comp = _companions(companions and ev.regime == "optical" and not ev.is_freq_axis
+                       and len(cat) > 0, lmin, lmax, r_grid, extra_lines, ev.main_kind)
     # the search sees the hydrogenic lines and the companions (COMPANION_WEIGHT, own groups of
     # one, so that they predict no missing lines, and out of the intensity check)
     nc = len(comp)
@@ -322,6 +334,26 @@ def _line_set(ev, names, zmin, zmax, series, companions, extra_lines):
                     st_comp=st_comp, xs=np.concatenate([x, x_comp]),
                     st_s=np.concatenate([strength, st_comp]), search_kw=search_kw,
                     anchors=np.flatnonzero(strength >= 0.02), r_grid=r_grid)
+
+
+def _shadowed(cat, strength, fwhm_ln, R):
+    """Strengths with the lines of secondary species that fall on a primary line (He II
+    Pickering members on the Balmer lines, within the features' typical width or one
+    resolution element) weighted down by SHADOW_WEIGHT: the primary line explains the
+    feature, and the secondary species is named by its lines no primary line covers (He II
+    4686, 5412)."""
+    if not len(cat):
+        return strength
+    primary = is_primary(cat)
+    if primary.all() or not primary.any():
+        return strength
+    x = np.log(cat["wavelength_vacuum"].to_value(u.m))
+    reach = max(float(np.median(fwhm_ln)) / 2 if len(fwhm_ln) else 0.0, 1.0 / R)
+    xp = np.sort(x[primary])
+    shadowed = ~primary & _within(xp, x, reach)
+    out = np.array(strength, float)
+    out[shadowed] *= SHADOW_WEIGHT
+    return out
 
 
 def _search(ev, ls, z, s_range, isig, calibration):
@@ -467,6 +499,67 @@ def _second_system(ev, ls, out, sols, s_range, isig, calibration):
     return [more[0]]
 
 
+def _pixels(ev, ls, sols, s_range, top=6):
+    """Step 3b: the search's best solutions checked on the pixels (`pixel_check`).  The
+    first keeps its place unless the pixels cap it below `secure` and another of the
+    `top` solutions has both a higher cap and more supported lines.  The kept solution's
+    status is capped by its support.  Returns the solutions (the kept one first), the
+    status and the hydrogenic lines the pixels allow."""
+    fr = ev.feature_result
+    scan = fr.scan if fr.scan is not None else _scan(fr, ev.R)
+    best_key, best_k, best_sup, best_cap = None, 0, None, "none"
+    lines = (ls.x, ls.strength, ls.group, ls.x_comp)
+    for k, sol in enumerate(sols[:top]):
+        feats = [m[0] for m in sol.matches]
+        fw = float(np.median(ev.fwhm[feats])) if feats else 1.0 / ev.R
+        reader = PixelReader(scan, fr.spectrum, fw, ev.main_kind)
+        null = reader.null_counts(s_range, *lines, avoid=sol.s, seed=len(ev.y))
+        sup = reader.support(sol.s, *lines)
+        cap = support_status(sup, null)
+        key = (STATUS_ORDER[cap], sup.n)
+        if best_key is None:
+            best_key, best_sup, best_cap = key, sup, cap
+            if cap == "secure":
+                break
+        elif key[0] > best_key[0] and key[1] > best_key[1]:
+            best_key, best_k, best_sup, best_cap = key, k, sup, cap
+    if best_sup is None:
+        return sols, "none", None
+    if best_k:
+        sols = [sols[best_k]] + sols[:best_k] + sols[best_k + 1:]
+    status = capped(classify(sols), best_cap)
+    sols[0].status = status
+    cat = ls.cat
+    broken = {(str(cat["species"][j]), int(cat["n_lower"][j]), int(cat["n_upper"][j]))
+              for j in best_sup.broken}
+    return sols, status, broken
+
+
+def _scan(feature_result, R):
+    """The scale-space scan of a spectrum measured by another detector."""
+    spec = feature_result.spectrum
+    x = spec.axis.value.astype(float)
+    sig = np.asarray(feature_result.noise, float)
+    good = ~spec.mask & np.isfinite(sig) & (sig > 0) & np.isfinite(spec.flux.value)
+    u_ax = np.log(x)
+    return scan_scales(u_ax, spec.flux.value.astype(float), sig, good, fwhm_min=1.0 / R)
+
+
+def _drop_unsupported(out, broken):
+    """Hydrogenic labels of members beyond the gap of their series (`pixel_check`) are
+    withdrawn; the features stay, unidentified.  Lines measured at z (flag at_z) are
+    measurements at a predicted place, not claims of detection: they stay."""
+    for i in range(len(out)):
+        if not out["label"][i] or has_flag(out["flags"][i], Flag.AT_Z):
+            continue
+        if (str(out["species"][i]), int(out["n_lower"][i]), int(out["n_upper"][i])) not in broken:
+            continue
+        for col, empty in (("label", ""), ("species", ""), ("series", ""), ("n_lower", 0),
+                           ("n_upper", 0), ("system", 0)):
+            out[col][i] = empty
+    return out
+
+
 def _set_shift(result, ev, sols, best_s, status, z):
     """Step 8: z, its error and the velocity in the convention of the regime."""
     if best_s is None or (status == "none" and z is None):
@@ -484,12 +577,12 @@ def _set_shift(result, ev, sols, best_s, status, z):
         result.velocity_err_kms = float(C_KMS * zerr)
 
 
-def _companions(wanted, lam_min, lam_max, R, extra_lines):
+def _companions(wanted, lam_min, lam_max, R, extra_lines, kind="emission"):
     """The companion lines of the rest range, less those a user's line stands for
     (within one resolution element): the user's list takes precedence."""
     if not wanted:
         return []
-    comp = [dict(c, source="companion") for c in companion_lines(lam_min, lam_max, R)]
+    comp = [dict(c, source="companion") for c in companion_lines(lam_min, lam_max, R, kind)]
     if extra_lines:
         xu = np.sort(np.log([line["rest_vacuum_m"] for line in extra_lines]))
         near = _within(xu, np.log([c["rest_vacuum_m"] for c in comp]), 1.0 / R)
