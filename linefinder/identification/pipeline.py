@@ -43,7 +43,7 @@ from .matching import assign, withdraw_unsupported
 from ..spectral.axis import observed_window, sorted_pixels, vacuum_ln
 from .redshift import _within, classify, refine, search_shift, solution_probability
 from .single_line import reading_candidate, readings_of
-from .pixel_check import STATUS_ORDER, PixelReader, capped, support_status
+from .pixel_check import PixelReader, capped, support_status
 from ..features.flags import Flag, has_flag, join_flags
 
 __all__ = ["identify", "Identification", "default_species", "read_line_list"]
@@ -54,6 +54,11 @@ COMPANION_WEIGHT = 1.0
 # a secondary species' line on a primary line counts this much of its strength (`_shadowed`);
 # a rule of this tool
 SHADOW_WEIGHT = 0.1
+# the pixel check reads the RERANK_TOP best solutions; one of them within RERANK_NATS of the
+# first's score that the pixels hold secure, where the first's are not, goes first (rules of
+# this tool)
+RERANK_TOP = 4
+RERANK_NATS = 3.0
 XRAY_IONS = ["C VI", "N VII", "O VIII", "Ne X", "Mg XII", "Si XIV", "S XVI", "Ar XVIII", "Ca XX",
              "Fe XXVI", "Ni XXVIII"]
 
@@ -106,12 +111,15 @@ def _n_ranges(reg, lam_rest_min, lam_rest_max):
 
 
 @functools.lru_cache(maxsize=8)
-def _catalogue(names, lower, upper, R, lam_min, lam_max, kind, series):
+def _catalogue(names, lower, upper, R, lam_min, lam_max, kind, series, fine=True):
     """The identification catalogue and its expected strengths and groups; the last few
     are kept for the next spectrum of a batch (callers must not modify them in place)."""
     # fine-structure components merged at the resolution: resolved doublets (X-ray
-    # Lyman-alpha of heavy ions, H I at very high R) keep their own positions
-    cat = build_catalogue(list(names), lower, upper, fine=True, resolution=R,
+    # Lyman-alpha of heavy ions, H I at very high R) keep their own positions.  Radio
+    # recombination lines (n ~ 40-300) are multiplets (`fine` False): their fine structure,
+    # a few 1e-5 of the frequency, lies inside the thermal width of any ionised gas
+    # (about 20 km/s for hydrogen at 10^4 K), and its components number n^2 per line
+    cat = build_catalogue(list(names), lower, upper, fine=fine, resolution=R,
                           wavelength_range=(lam_min * u.m, lam_max * u.m))
     if series:
         wanted = {s.lower() for s in series}
@@ -311,7 +319,8 @@ def _line_set(ev, names, zmin, zmax, series, companions, extra_lines):
     lmax = float(np.exp(np.ceil(np.log(lam_rest_max) / q) * q))
     r_grid = float(np.exp(np.round(np.log(ev.R) / 0.1) * 0.1))
     cat, strength, group = _catalogue(tuple(names), tuple(lower), tuple(upper), r_grid, lmin, lmax,
-                                      ev.main_kind, tuple(series) if series else None)
+                                      ev.main_kind, tuple(series) if series else None,
+                                      ev.regime != "radio")
     keep = strength >= 1e-3
     cat, strength, group = cat[keep], strength[keep], group[keep]
     strength = _shadowed(cat, strength, ev.fwhm[ev.use] if len(ev.fwhm) else np.zeros(0), ev.R)
@@ -326,6 +335,11 @@ def _line_set(ev, names, zmin, zmax, series, companions, extra_lines):
     nc = len(comp)
     x_comp = np.log([c["rest_vacuum_m"] for c in comp]) if nc else np.zeros(0)
     st_comp = np.array([c["strength"] for c in comp], dtype=float)
+    if nc and len(cat):
+        # a companion on a hydrogen line (Ca II H on Hepsilon) counts as a shadowed line does
+        reach = _reach(ev.fwhm[ev.use] if len(ev.fwhm) else np.zeros(0), ev.R)
+        on_h = _within(np.sort(x[is_primary(cat)]), x_comp, reach)
+        st_comp = np.where(on_h, st_comp * SHADOW_WEIGHT, st_comp)
     search_kw = dict(group=_more_codes(group_codes, nc), multiplet=_more_codes(multiplet, nc),
                      line_weight=np.concatenate([line_weight, np.full(nc, COMPANION_WEIGHT)]),
                      intensity_strength=np.concatenate([strength, np.zeros(nc)]))
@@ -348,12 +362,17 @@ def _shadowed(cat, strength, fwhm_ln, R):
     if primary.all() or not primary.any():
         return strength
     x = np.log(cat["wavelength_vacuum"].to_value(u.m))
-    reach = max(float(np.median(fwhm_ln)) / 2 if len(fwhm_ln) else 0.0, 1.0 / R)
+    reach = _reach(fwhm_ln, R)
     xp = np.sort(x[primary])
     shadowed = ~primary & _within(xp, x, reach)
     out = np.array(strength, float)
     out[shadowed] *= SHADOW_WEIGHT
     return out
+
+
+def _reach(fwhm_ln, R):
+    """Half the features' typical FWHM, at least one resolution element (ln units)."""
+    return max(float(np.median(fwhm_ln)) / 2 if len(fwhm_ln) else 0.0, 1.0 / R)
 
 
 def _search(ev, ls, z, s_range, isig, calibration):
@@ -499,39 +518,48 @@ def _second_system(ev, ls, out, sols, s_range, isig, calibration):
     return [more[0]]
 
 
-def _pixels(ev, ls, sols, s_range, top=6):
-    """Step 3b: the search's best solutions checked on the pixels (`pixel_check`).  The
-    first keeps its place unless the pixels cap it below `secure` and another of the
-    `top` solutions has both a higher cap and more supported lines.  The kept solution's
-    status is capped by its support.  Returns the solutions (the kept one first), the
-    status and the hydrogenic lines the pixels allow."""
+def _pixels(ev, ls, sols, s_range):
+    """Step 3b: the search's best solution checked on the pixels (`pixel_check`): its
+    status capped by the support the pixels give it.  Returns the solutions, the status
+    and the hydrogenic lines beyond the gap of their series (their labels are withdrawn)."""
+    if not sols:
+        return sols, "none", None
     fr = ev.feature_result
     scan = fr.scan if fr.scan is not None else _scan(fr, ev.R)
-    best_key, best_k, best_sup, best_cap = None, 0, None, "none"
-    lines = (ls.x, ls.strength, ls.group, ls.x_comp)
-    for k, sol in enumerate(sols[:top]):
+    # radio recombination lines: one run per species over all its lines, strongest (the
+    # alpha lines) first; their "series" (the lower level) holds a line or two each
+    group = np.asarray(ls.cat["species"]).astype(str) if ev.regime == "radio" else ls.group
+    lines = (ls.x, ls.strength, group, ls.x_comp)
+    verdicts = []
+    for sol in sols[:RERANK_TOP]:
         feats = [m[0] for m in sol.matches]
         fw = float(np.median(ev.fwhm[feats])) if feats else 1.0 / ev.R
         reader = PixelReader(scan, fr.spectrum, fw, ev.main_kind)
         null = reader.null_counts(s_range, *lines, avoid=sol.s, seed=len(ev.y))
         sup = reader.support(sol.s, *lines)
-        cap = support_status(sup, null)
-        key = (STATUS_ORDER[cap], sup.n)
-        if best_key is None:
-            best_key, best_sup, best_cap = key, sup, cap
-            if cap == "secure":
+        verdicts.append((sup, support_status(sup, null), fw))
+    # a solution close behind on the features that the pixels hold secure, where the first
+    # is not, goes first
+    k = 0
+    if verdicts[0][1] != "secure":
+        for i, (_, cap, _) in enumerate(verdicts[1:], 1):
+            if cap == "secure" and sols[i].score >= sols[0].score - RERANK_NATS:
+                k = i
                 break
-        elif key[0] > best_key[0] and key[1] > best_key[1]:
-            best_key, best_k, best_sup, best_cap = key, k, sup, cap
-    if best_sup is None:
-        return sols, "none", None
-    if best_k:
-        sols = [sols[best_k]] + sols[:best_k] + sols[best_k + 1:]
-    status = capped(classify(sols), best_cap)
+    if k:
+        sols = [sols[k]] + sols[:k] + sols[k + 1:]
+        verdicts = [verdicts[k]] + verdicts[:k] + verdicts[k + 1:]
+    sup, cap, fw = verdicts[0]
+    # solutions within a line width of the first are the same system displaced (broad
+    # lines), not alternatives to it
+    distinct = [sols[0]] + [x for x in sols[1:] if abs(x.s - sols[0].s) > fw]
+    status = capped(classify(distinct), cap)
+    for x in sols[1:]:
+        x.status = "alternative"
     sols[0].status = status
     cat = ls.cat
     broken = {(str(cat["species"][j]), int(cat["n_lower"][j]), int(cat["n_upper"][j]))
-              for j in best_sup.broken}
+              for j in sup.broken}
     return sols, status, broken
 
 

@@ -28,7 +28,7 @@ hydrogenic, and must beat the chance level by two lines: the support found
 at `NULL_TRIALS` random shifts over the searched range (99th percentile), so
 that a spectrum full of features, where any shift finds a few lines, does
 not make a secure system of them; `tentative` needs at least two lines, one
-hydrogenic.  Among the best
+hydrogenic, and two more than chance finds at a typical shift (the median).  Among the best
 solutions of the search the one with most support is kept.  These counts are
 rules of this tool (common practice: a redshift rests on independent lines).
 """
@@ -216,11 +216,11 @@ def _run(E, first, decrement=True):
 def support_status(sup, null=None):
     """The highest status the pixel support allows; `null`: support counts at random
     shifts (`PixelReader.null_counts`), whose 99th percentile a `secure` solution must
-    beat by two lines."""
-    q = float(np.percentile(null, 99)) if null is not None and len(null) else 0.0
-    if sup.n >= max(SECURE_LINES, q + 2) and len(sup.hydrogen) >= SECURE_HYDROGEN:
+    beat by two lines and whose median a `tentative` one must beat by two."""
+    q99, q50 = (np.percentile(null, [99, 50]) if null is not None and len(null) else (0.0, 0.0))
+    if sup.n >= max(SECURE_LINES, q99 + 2) and len(sup.hydrogen) >= SECURE_HYDROGEN:
         return "secure"
-    if sup.n >= 2 and len(sup.hydrogen) >= 1:
+    if sup.n >= max(2, q50 + 2) and len(sup.hydrogen) >= 1:
         return "tentative"
     return "none"
 
