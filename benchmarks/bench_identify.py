@@ -38,7 +38,7 @@ import numpy as np
 
 
 def _run_one(args):
-    seed, index, noise, max_pixels = args
+    seed, index, noise, max_pixels, detector = args
     from linefinder.identification.pipeline import identify
     from linefinder.simulate.suite import make_noise_spectrum, make_spectrum, random_parameters
 
@@ -51,7 +51,8 @@ def _run_one(args):
         spec, truth = make_spectrum(rng, **p, max_pixels=max_pixels)
     t0 = time.perf_counter()
     try:
-        res = identify(spec, mask_sky=True)   # ground-based spectra: sky residuals masked
+        # ground-based spectra: sky residuals masked
+        res = identify(spec, mask_sky=True, detector=detector)
     except Exception as exc:  # a crash is a result too: count it, keep going
         return {"truth": truth, "error": f"{type(exc).__name__}: {exc}", "seconds": 0.0}
     dt = time.perf_counter() - t0
@@ -277,13 +278,21 @@ def main():
                     help="pixels per spectrum at most: the default lets every spectrum cover a "
                          "factor 2.8 in wavelength; 6000 gives the narrow windows of the tests")
     ap.add_argument("--speed-only", action="store_true")
+    ap.add_argument("--detector", default="scales,profiles",
+                    help="feature detectors to compare on the same spectra, comma-separated")
     ap.add_argument("--dump", help="write the per-spectrum results to this JSON file")
     a = ap.parse_args()
     speed()
     if a.speed_only:
         return
-    tasks = [(a.seed, i, False, a.max_pixels) for i in range(a.n)] + \
-        [(a.seed, i, True, a.max_pixels) for i in range(a.noise)]
+    for detector in a.detector.split(","):
+        print(f"\n== detector: {detector}")
+        _suite(a, detector)
+
+
+def _suite(a, detector):
+    tasks = [(a.seed, i, False, a.max_pixels, detector) for i in range(a.n)] + \
+        [(a.seed, i, True, a.max_pixels, detector) for i in range(a.noise)]
     t0 = time.perf_counter()
     with mp.Pool(a.jobs) as pool:
         results = []

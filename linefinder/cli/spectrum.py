@@ -22,6 +22,9 @@ def add_spectrum_options(p):
     p.add_argument("--input-unit", metavar="UNIT", help="unit of the file's spectral axis if not stated")
     p.add_argument("--snr", type=float, default=5.0, help="detection threshold in sigma (default 5)")
     p.add_argument("--resolution", type=float, metavar="R", help="resolving power (default: file or estimated)")
+    p.add_argument("--detector", choices=["profiles", "scales"], default="profiles",
+                   help="feature finder: profiles (profile fits, default) or scales (scale-space "
+                        "scan and one joint fit: fast, and finds lines 10-300 Å wide)")
     p.add_argument("--emission", action="store_true", help="emission features only")
     p.add_argument("--absorption", action="store_true", help="absorption features only")
     p.add_argument("--list", action="store_true", help="list what the file holds and stop")
@@ -100,7 +103,8 @@ def _cmd_peaks(args):
     data = load_input(args)
     if is_peak_list(data):
         raise SpectrumFormatError(f"{args.spectrum}: is already a peak list; 'peaks' needs a spectrum")
-    result = find_features(data, snr=args.snr, resolution=args.resolution, kinds=kinds_from_args(args))
+    result = find_features(data, snr=args.snr, resolution=args.resolution, kinds=kinds_from_args(args),
+                           detector=args.detector)
     unit = parse_unit(args.unit) if args.unit else data.axis.unit
     flat = features_in_unit(result.features, unit)
     meta = result.features.meta

@@ -18,7 +18,7 @@ ultraviolet rise over a few times that width.
 import numpy as np
 from scipy.interpolate import BSpline
 
-__all__ = ["fit_joint", "KNOT_FWHM", "MIN_KNOT_LN"]
+__all__ = ["fit_joint", "refine_centres", "KNOT_FWHM", "MIN_KNOT_LN"]
 
 KNOT_FWHM = 3.0
 MIN_KNOT_LN = 0.01     # 1 % in wavelength
@@ -86,3 +86,50 @@ def _covariance(An):
     inv = np.where(s > thresh, 1.0 / np.where(s > thresh, s, 1.0) ** 2, np.inf)
     inv = np.where(np.isfinite(inv), inv, 1e30)
     return (vt.T * inv) @ vt
+
+
+def refine_centres(u, y, w, cont, centres, fwhms, amps, *, steps=2):
+    """Centres of the jointly fitted Gaussians refined one by one, with their errors.
+
+    Each line is fitted on the data less the continuum and the other lines, within
+    +/- 2 FWHM, by a weighted linear fit of its Gaussian, the Gaussian's derivative in
+    the centre and a constant (one Gauss-Newton step: the derivative's coefficient over
+    the amplitude is the shift); `steps` steps, each held within half a sigma.  The
+    error is that of the shift in the last step, from the fit's covariance.
+    """
+    centres = np.array(centres, float)
+    fwhms = np.asarray(fwhms, float)
+    amps = np.asarray(amps, float)
+    err = np.full(len(centres), np.nan)
+    sig = fwhms / GAUSS_FWHM
+
+    def gauss(k):
+        d = (u - centres[k]) / sig[k]
+        return np.where(np.abs(d) < 4.0, amps[k] * np.exp(-0.5 * d * d), 0.0)
+
+    model = sum((gauss(k) for k in range(len(centres))), np.zeros(len(u)))
+    for k in range(len(centres)):
+        lo, hi = np.searchsorted(u, [centres[k] - 2 * fwhms[k], centres[k] + 2 * fwhms[k]])
+        if hi - lo < 5:
+            continue
+        uu, ww = u[lo:hi], w[lo:hi]
+        own = gauss(k)[lo:hi]
+        r = y[lo:hi] - cont[lo:hi] - (model[lo:hi] - own)
+        for _ in range(steps):
+            d = (uu - centres[k]) / sig[k]
+            g = np.exp(-0.5 * d * d)
+            A = np.column_stack([g, g * d, np.ones_like(g)]) * np.sqrt(ww)[:, None]
+            try:
+                cov = np.linalg.inv(A.T @ A)
+            except np.linalg.LinAlgError:
+                break
+            a, b, _ = cov @ (A.T @ (r * np.sqrt(ww)))
+            if not a or not np.isfinite(a):
+                break
+            shift = sig[k] * b / a
+            err[k] = abs(sig[k] / a) * np.sqrt(max(cov[1, 1], 0.0))
+            if abs(shift) > 0.5 * sig[k]:
+                centres[k] += np.sign(shift) * 0.5 * sig[k]
+            else:
+                centres[k] += shift
+    return centres, err

@@ -18,20 +18,16 @@ of standard stars are quoted to about a per cent; common practice).
 import numpy as np
 from scipy.ndimage import median_filter
 
-from ..errors import SpectrumFormatError
 from ..spectral.spectrum import prepare
 from .candidates import find_spikes
 from .continuum import robust_noise
 from .flags import Flag
-from .joint import fit_joint
+from .joint import fit_joint, refine_centres
 from .scales import GAUSS_FWHM, scale_peaks, scan_scales
 
 __all__ = ["find_features_scales", "NOISE_FLOOR", "DEFAULT_FWHM_PX"]
 
 NOISE_FLOOR = 0.01
-# systematic centre error, in FWHM, of a Gaussian fitted to a real line profile (rule of thumb
-# of this tool: asymmetric infill, wings and blends move a centre by a few per cent of the width)
-PROFILE_SHIFT = 0.03
 DEFAULT_FWHM_PX = 2.5
 
 
@@ -56,38 +52,46 @@ def find_features_scales(spec, *, snr=5.0, resolution=None, kinds=("emission", "
     x = spec.axis.value.astype(float)
     y = spec.flux.value.astype(float)
     good = ~spec.mask & np.isfinite(y)
-    if (x <= 0).any():
-        raise SpectrumFormatError(f"{spec.source}: the spectral axis has values <= 0")
     sig, noise_source = _noise(spec, y, good)
     good &= np.isfinite(sig) & (sig > 0)
-    u = np.log(x)
+    # the scan runs in ln(axis) (widths as fractions of the position, as resolution and
+    # velocity set them); an axis that reaches zero or below (pixel numbers, offsets) is
+    # scanned as it is
+    log_axis = bool((x > 0).all())
+    u = np.log(x) if log_axis else x
     du = np.diff(u)
     R = resolution or spec.meta.get("resolution")
     res_source = "option" if resolution else ("file" if R else None)
-    fwhm_min = 1.0 / R if R else DEFAULT_FWHM_PX * float(np.median(du))
+    fwhm_min = 1.0 / R if R and log_axis else DEFAULT_FWHM_PX * float(np.median(du))
     fwhm_px = fwhm_min / float(np.median(du))
     # single-pixel spikes against a running median (cosmic rays, hot pixels)
     k = max(int(4 * fwhm_px) | 1, 5)
     spikes = find_spikes(y, median_filter(np.where(good, y, np.nanmedian(y[good])), size=k,
                                           mode="nearest"), sig, good, fwhm_px)
     good &= ~spikes
-    scan = scan_scales(u, y, sig, good, fwhm_min=fwhm_min)
+    scan = scan_scales(u, y, sig, good, fwhm_min=fwhm_min,
+                       **({} if log_axis else {"fwhm_max": np.inf}))
     peaks = scale_peaks(scan, snr=snr, kinds=kinds)
     if peaks:
         keep, amp, err, cont_g = fit_joint(scan.u, scan.y, scan.w, [p.u for p in peaks],
                                            [p.fwhm for p in peaks], [np.sign(p.snr) for p in peaks],
                                            snr=snr)
+        centres, c_err = refine_centres(scan.u, scan.y, scan.w, cont_g,
+                                        [peaks[i].u for i in keep], [peaks[i].fwhm for i in keep],
+                                        amp)
     else:
         keep, amp, err = np.zeros(0, int), np.zeros(0), np.zeros(0)
+        centres, c_err = np.zeros(0), np.zeros(0)
         cont_g = _baseline(scan)
     cont = np.interp(u, scan.u, cont_g)
-    if not R:
+    if not R and log_axis:
         narrow = [peaks[i].fwhm for i, a, e in zip(keep, amp, err)
                   if abs(a / e) > 10 and peaks[i].rung <= 2]
         if len(narrow) >= 3:
             R = 1.0 / float(np.median(narrow))
             res_source = "estimated from the narrowest strong features"
-    rows = [_row(peaks[i], a, e, scan, u) for i, a, e in zip(keep, amp, err)]
+    rows = [_row(peaks[i], a, e, c, ce, scan, u, log_axis)
+            for i, a, e, c, ce in zip(keep, amp, err, centres, c_err)]
     table = _table(rows, spec, None, kinds)
     table.meta.update({"source": spec.source, "medium": spec.medium,
                        "medium_source": spec.meta.get("medium_source"),
@@ -111,37 +115,35 @@ def _baseline(scan):
     return np.interp(scan.u, scan.u[ok], b[ok])
 
 
-def _row(p, a, e, scan, u_pix):
-    c_u = np.exp(p.u)
+def _row(p, a, e, centre_u, centre_err, scan, u_pix, log_axis=True):
+    # in the axis unit: x = exp(u), dx = x du (or x = u on a linear scan)
+    c_u = np.exp(centre_u) if log_axis else centre_u
+    scale = c_u if log_axis else 1.0
     sig_u = p.fwhm / GAUSS_FWHM
     snr = a / e
-    # in the axis unit: x = exp(u), dx = x du
-    fwhm = c_u * p.fwhm
-    s = c_u * sig_u
+    fwhm = scale * p.fwhm
+    s = scale * sig_u
     flux = a * s * np.sqrt(2 * np.pi)
     rel_w = np.sqrt(2.0) / max(abs(snr), 1e-9)
     flux_err = abs(flux) * np.hypot(1.0 / max(abs(snr), 1e-9), rel_w)
-    j = int(np.clip(np.searchsorted(scan.u, p.u), 0, len(scan.u) - 1))
+    # the centre's error from its local fit (`refine_centres`); else that of a Gaussian of
+    # known width in white noise, sqrt(2) sigma_g / SNR
+    u_err = centre_err if np.isfinite(centre_err) else np.sqrt(2.0) * sig_u / max(abs(snr), 1e-9)
+    j = int(np.clip(np.searchsorted(scan.u, centre_u), 0, len(scan.u) - 1))
     c = p.continuum
     flags = []
-    if p.u - 2 * p.fwhm < u_pix[0] or p.u + 2 * p.fwhm > u_pix[-1]:
+    if centre_u - 2 * p.fwhm < u_pix[0] or centre_u + 2 * p.fwhm > u_pix[-1]:
         flags.append(Flag.EDGE.value)
-    lo, hi = np.searchsorted(scan.u, [p.u - p.fwhm, p.u + p.fwhm])
+    lo, hi = np.searchsorted(scan.u, [centre_u - p.fwhm, centre_u + p.fwhm])
     if (scan.w[lo:hi] <= 0).any():
         flags.append(Flag.MASKED.value)
     if p.rung == 0:
         flags.append(Flag.UNRESOLVED.value)
     ew = -flux / c if c else np.nan
-    # statistical error of a Gaussian's centre (sqrt(2) sigma_g / SNR), with in quadrature
-    # the grid's step (du / sqrt(12)) and PROFILE_SHIFT of the FWHM: real profiles are not
-    # Gaussians (Lorentzian wings, emission filling, blends) and their fitted centre moves
-    # by a fraction of the width
-    u_err = np.sqrt((np.sqrt(2.0) * sig_u / max(abs(snr), 1e-9)) ** 2
-                    + (scan.u[1] - scan.u[0]) ** 2 / 12.0 + (PROFILE_SHIFT * p.fwhm) ** 2)
-    return {"center": c_u, "center_err": c_u * u_err,
+    return {"center": c_u, "center_err": scale * u_err,
             "fwhm": fwhm, "fwhm_err": fwhm * rel_w, "amplitude": a, "flux": flux,
             "flux_err": flux_err, "equivalent_width": ew,
             "equivalent_width_err": abs(flux_err / c) if c else np.nan,
             "snr": snr, "kind": "emission" if a > 0 else "absorption", "flags": ",".join(flags),
             "profile": "gaussian", "continuum": c, "chi2_red": np.nan,
-            "pixel": int(np.searchsorted(u_pix, p.u)), "grid_index": j}
+            "pixel": int(np.searchsorted(u_pix, centre_u)), "grid_index": j}

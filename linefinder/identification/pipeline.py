@@ -54,6 +54,11 @@ COMPANION_WEIGHT = 1.0
 # a secondary species' line on a primary line counts this much of its strength (`_shadowed`);
 # a rule of this tool
 SHADOW_WEIGHT = 0.1
+BROAD_RESOLUTION = 3.0
+# systematic shift, in FWHM, of the centre of a real line profile fitted as a Gaussian: a
+# rule of thumb of this tool (asymmetric infill, Lorentzian wings and blends move a centre by
+# a few per cent of the width)
+PROFILE_SHIFT = 0.03
 # the pixel check reads the RERANK_TOP best solutions; one of them within RERANK_NATS of the
 # first's score that the pixels hold secure, where the first's are not, goes first (rules of
 # this tool)
@@ -161,6 +166,7 @@ class _Evidence:
     regime: str
     main_kind: str
     window: tuple               #: observed window in ln (None for a peak list)
+    detector: str = "profiles"  #: which feature detector measured the features
 
 
 @dataclass
@@ -273,7 +279,13 @@ def _evidence(data, kinds, snr, resolution, calibration, resolution_fraction, ma
         R = float(np.nanmedian(rr)) if np.any(np.isfinite(rr)) else 2000.0
     R = R or 2000.0
     sy_meas = np.nan_to_num(rel, nan=1.0 / R)
-    sy = np.sqrt(sy_meas ** 2 + calibration ** 2 + (resolution_fraction / R) ** 2)
+    # matching tolerance: the measured error, the calibration, a fraction of the resolution
+    # element and, for the scale-space features (Gaussians of the ladder's widths),
+    # PROFILE_SHIFT of the feature's own width (real profiles are not Gaussians: emission
+    # filling, wings and blends move a broad line's fitted centre)
+    shape = PROFILE_SHIFT if detector == "scales" else 0.0   # (the profile fits fit the shape)
+    sy = np.sqrt(sy_meas ** 2 + calibration ** 2 + (resolution_fraction / R) ** 2
+                 + (shape * _width_ln(feats)) ** 2)
     is_freq_axis = len(feats) > 0 and not u.Quantity(feats["center"]).unit.is_equivalent(u.m)
     sky = np.zeros(len(feats), bool)
     telluric = np.zeros(len(feats), bool)
@@ -296,7 +308,8 @@ def _evidence(data, kinds, snr, resolution, calibration, resolution_fraction, ma
         fwhm=_width_ln(feats), blend=np.array([has_flag(f, Flag.BLEND) for f in feats["flags"]],
                                               dtype=bool),
         is_freq_axis=is_freq_axis, regime=regime(lam) if len(lam) else "optical",
-        main_kind=_main_kind(snr_arr, kinds_arr, use), window=observed_window(feature_result, y))
+        main_kind=_main_kind(snr_arr, kinds_arr, use), window=observed_window(feature_result, y),
+        detector=detector)
 
 
 def _line_set(ev, names, zmin, zmax, series, companions, extra_lines):
@@ -323,7 +336,10 @@ def _line_set(ev, names, zmin, zmax, series, companions, extra_lines):
                                       ev.regime != "radio")
     keep = strength >= 1e-3
     cat, strength, group = cat[keep], strength[keep], group[keep]
-    strength = _shadowed(cat, strength, ev.fwhm[ev.use] if len(ev.fwhm) else np.zeros(0), ev.R)
+    if ev.detector == "scales":
+        # (measured side by side: it helps the broad lines the scales detector finds, and
+        # costs the profile-fit detector a synthetic Lyman/Balmer alias)
+        strength = _shadowed(cat, strength, ev.fwhm[ev.use] if len(ev.fwhm) else np.zeros(0), ev.R)
     group_codes = np.unique(group, return_inverse=True)[1] if len(group) else np.zeros(0, int)
     line_weight = np.where(is_primary(cat), 1.0, 0.5) if len(cat) else np.zeros(0)
     multiplet = multiplet_codes(cat)
@@ -335,7 +351,7 @@ def _line_set(ev, names, zmin, zmax, series, companions, extra_lines):
     nc = len(comp)
     x_comp = np.log([c["rest_vacuum_m"] for c in comp]) if nc else np.zeros(0)
     st_comp = np.array([c["strength"] for c in comp], dtype=float)
-    if nc and len(cat):
+    if nc and len(cat) and ev.detector == "scales":
         # a companion on a hydrogen line (Ca II H on Hepsilon) counts as a shadowed line does
         reach = _reach(ev.fwhm[ev.use] if len(ev.fwhm) else np.zeros(0), ev.R)
         on_h = _within(np.sort(x[is_primary(cat)]), x_comp, reach)
@@ -352,10 +368,11 @@ def _line_set(ev, names, zmin, zmax, series, companions, extra_lines):
 
 def _shadowed(cat, strength, fwhm_ln, R):
     """Strengths with the lines of secondary species that fall on a primary line (He II
-    Pickering members on the Balmer lines, within the features' typical width or one
-    resolution element) weighted down by SHADOW_WEIGHT: the primary line explains the
-    feature, and the secondary species is named by its lines no primary line covers (He II
-    4686, 5412)."""
+    Pickering members on the Balmer lines, within half the features' typical width)
+    weighted down by SHADOW_WEIGHT, where the features are broad (half-width at least
+    BROAD_RESOLUTION resolution elements) and their positions cannot tell the two apart:
+    the primary line explains the feature, and the secondary species is named by its lines
+    no primary line covers (He II 4686, 5412)."""
     if not len(cat):
         return strength
     primary = is_primary(cat)
@@ -363,6 +380,8 @@ def _shadowed(cat, strength, fwhm_ln, R):
         return strength
     x = np.log(cat["wavelength_vacuum"].to_value(u.m))
     reach = _reach(fwhm_ln, R)
+    if reach < BROAD_RESOLUTION / R:
+        return strength         # resolved narrow lines: the positions tell them apart
     xp = np.sort(x[primary])
     shadowed = ~primary & _within(xp, x, reach)
     out = np.array(strength, float)
