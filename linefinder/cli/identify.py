@@ -19,7 +19,7 @@ def _run(args):
     return identify(data, species=args.species, z=getattr(args, "z", None), zmin=args.zmin,
                     zmax=args.zmax, series=args.series, kinds=kinds_from_args(args), snr=args.snr,
                     resolution=args.resolution, extra_lines=extra, mask_sky=args.mask_sky,
-                    detector=getattr(args, "detector", "profiles"),
+                    detector=getattr(args, "detector", "auto"),
                     mask_telluric=args.mask_telluric,
                     companions=not getattr(args, "no_companions", False))
 

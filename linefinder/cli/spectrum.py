@@ -22,9 +22,10 @@ def add_spectrum_options(p):
     p.add_argument("--input-unit", metavar="UNIT", help="unit of the file's spectral axis if not stated")
     p.add_argument("--snr", type=float, default=5.0, help="detection threshold in sigma (default 5)")
     p.add_argument("--resolution", type=float, metavar="R", help="resolving power (default: file or estimated)")
-    p.add_argument("--detector", choices=["profiles", "scales"], default="profiles",
-                   help="feature finder: profiles (profile fits, default) or scales (scale-space "
-                        "scan and one joint fit: fast, and finds lines 10-300 Å wide)")
+    p.add_argument("--detector", choices=["auto", "profiles", "scales"], default="auto",
+                   help="feature finder: profiles (profile fits), scales (scale-space scan and "
+                        "one joint fit: fast, finds lines 10-300 Å wide), or auto (default: "
+                        "scales where the strong lines are broad, else profiles)")
     p.add_argument("--emission", action="store_true", help="emission features only")
     p.add_argument("--absorption", action="store_true", help="absorption features only")
     p.add_argument("--list", action="store_true", help="list what the file holds and stop")

@@ -53,7 +53,7 @@ class FeatureResult:
 
 
 def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorption"),
-                  knot_px=None, min_separation_px=None, detector="profiles"):
+                  knot_px=None, min_separation_px=None, detector="auto"):
     """Find and measure features; returns a `FeatureResult`.
 
     Parameters
@@ -63,15 +63,23 @@ def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorpt
     resolution : resolving power R; default from the file, else estimated
     kinds : which of "emission", "absorption" to report
     knot_px : continuum knot spacing in pixels (default: from the line widths)
-    detector : "profiles" (this module: continuum, matched filter, profile fits) or
-        "scales" (`scale_detect`: scale-space scan and one joint linear fit)
+    detector : "profiles" (this module: continuum, matched filter, profile fits),
+        "scales" (`scale_detect`: scale-space scan and one joint linear fit), or "auto"
+        (the default: the scan first, which is cheap; its result where the strong lines
+        are broad (`scale_detect.is_broad`), where profile fits fail and are slow;
+        otherwise the profile fits, which measure narrow lines best)
     """
-    if detector == "scales":
-        from .scale_detect import find_features_scales
+    if detector not in ("auto", "profiles", "scales"):
+        raise ValueError(f"unknown detector {detector!r}: 'auto', 'profiles' or 'scales'")
+    if detector in ("auto", "scales"):
+        from .scale_detect import find_features_scales, is_broad
 
-        return find_features_scales(spec, snr=snr, resolution=resolution, kinds=kinds)
-    if detector != "profiles":
-        raise ValueError(f"unknown detector {detector!r}: 'profiles' or 'scales'")
+        found = find_features_scales(spec, snr=snr, resolution=resolution, kinds=kinds)
+        if detector == "scales" or is_broad(found):
+            return found
+        return find_features(spec, snr=snr, resolution=resolution, kinds=kinds,
+                             knot_px=knot_px, min_separation_px=min_separation_px,
+                             detector="profiles")
     spec = prepare(spec)
     x_all = spec.axis.value
     y_all = spec.flux.value
@@ -124,12 +132,12 @@ def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorpt
         R = float(np.median(x_all / (est_px * np.abs(np.gradient(x_all)))))
         res_source = "estimated from the narrowest strong features"
         again = find_features(spec, snr=snr, resolution=R, kinds=kinds, knot_px=knot_px,
-                              min_separation_px=min_separation_px)
+                              min_separation_px=min_separation_px, detector="profiles")
         again.features.meta["resolution_source"] = res_source
         again.meta["resolution_source"] = res_source
         return again
     table = _table(rows, spec, cont_all, kinds)
-    table.meta.update({"source": spec.source, "medium": spec.medium,
+    table.meta.update({"source": spec.source, "medium": spec.medium, "detector": "profiles",
                        "medium_source": spec.meta.get("medium_source"),
                        "unit": str(spec.axis.unit), "noise_source": noise_source,
                        "resolution": R, "resolution_source": res_source or "default 3-pixel FWHM",

@@ -25,9 +25,21 @@ from .flags import Flag
 from .joint import fit_joint, refine_centres
 from .scales import GAUSS_FWHM, scale_peaks, scan_scales
 
-__all__ = ["find_features_scales", "NOISE_FLOOR", "DEFAULT_FWHM_PX"]
+__all__ = ["find_features_scales", "is_broad", "NOISE_FLOOR", "DEFAULT_FWHM_PX", "BROAD_KMS"]
 
 NOISE_FLOOR = 0.01
+# a spectrum's lines are broad (`is_broad`) when BROAD_COUNT of its BROAD_TOP strongest
+# features (|S/N| >= BROAD_SNR) are wider than BROAD_KMS and BROAD_RESOLUTION resolution
+# elements: pressure-
+# and rotation-broadened stellar lines, quasar broad lines, galaxies' Balmer absorption.
+# Rules of this tool, set by the observed and synthetic spectra side by side
+# (docs/real-spectra.md)
+BROAD_SNR = 10.0
+BROAD_TOP = 5
+BROAD_COUNT = 2
+BROAD_KMS = 1000.0
+BROAD_RESOLUTION = 5.0
+C_KMS = 299792.458
 DEFAULT_FWHM_PX = 2.5
 
 
@@ -101,7 +113,7 @@ def find_features_scales(spec, *, snr=5.0, resolution=None, kinds=("emission", "
                        "snr_threshold": snr, "eqw_convention": EQUIVALENT_WIDTH_CONVENTION,
                        "n_pixels": len(y), "n_masked": int(spec.mask.sum()),
                        "spike_pixels": np.flatnonzero(spikes).tolist(),
-                       "detector": "scales"})
+                       "detector": "scales", "log_axis": log_axis})
     return FeatureResult(features=table, spectrum=spec, continuum=cont, noise=sig,
                          meta=dict(table.meta), scan=scan)
 
@@ -147,3 +159,26 @@ def _row(p, a, e, centre_u, centre_err, scan, u_pix, log_axis=True):
             "snr": snr, "kind": "emission" if a > 0 else "absorption", "flags": ",".join(flags),
             "profile": "gaussian", "continuum": c, "chi2_red": np.nan,
             "pixel": int(np.searchsorted(u_pix, centre_u)), "grid_index": j}
+
+
+def is_broad(result):
+    """Are the strong lines of a scale-space feature result broad?  At least BROAD_COUNT of
+    its BROAD_TOP strongest features (|S/N| >= BROAD_SNR), of one kind, are wider than
+    BROAD_KMS and than BROAD_RESOLUTION resolution elements."""
+    t = result.features
+    if not len(t) or not result.meta.get("log_axis", True):
+        return False
+    snr = np.abs(np.asarray(t["snr"], float))
+    top = np.argsort(-snr)[:BROAD_TOP]
+    top = top[snr[top] >= BROAD_SNR]
+    if not len(top):
+        return False
+    centre = np.abs(np.asarray(t["center"].value, float))
+    fw = np.abs(np.asarray(t["fwhm"].to_value(t["center"].unit), float)) / centre
+    R = result.meta.get("resolution")
+    limit = max(BROAD_KMS / C_KMS, BROAD_RESOLUTION / R if R else 0.0)
+    # of one kind: a step of the continuum (a Lyman break) reads as a broad pair of
+    # opposite signs
+    broad = fw[top] > limit
+    sign = np.sign(np.asarray(t["snr"], float)[top])
+    return max(int(np.sum(broad & (sign > 0))), int(np.sum(broad & (sign < 0)))) >= BROAD_COUNT

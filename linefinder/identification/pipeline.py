@@ -192,7 +192,7 @@ class _LineSet:
 def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
              kinds=("emission", "absorption"), snr=5.0, resolution=None, extra_lines=None,
              mask_sky=False, mask_telluric=False, calibration=2e-5, resolution_fraction=0.1,
-             find_systems=True, companions=True, detector="profiles"):
+             find_systems=True, companions=True, detector="auto"):
     """Identify the hydrogenic lines of a spectrum or a peak list; see the module docstring.
 
     The steps: measure the features (`_evidence`), choose the lines of the regime
@@ -255,7 +255,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
 
 
 def _evidence(data, kinds, snr, resolution, calibration, resolution_fraction, mask_sky,
-              mask_telluric, detector="profiles"):
+              mask_telluric, detector="auto"):
     """Step 1: the features (measured here unless `data` is a peak list) and what they say."""
     from ..features.detect import find_features
     from ..io.read import is_peak_list
@@ -270,6 +270,7 @@ def _evidence(data, kinds, snr, resolution, calibration, resolution_fraction, ma
                                        detector=detector)
         feats = feature_result.features.copy()
         medium = feature_result.meta["medium"]
+        detector = feature_result.meta.get("detector", detector)
         R = feature_result.meta.get("resolution")
     feats = feats[[k in kinds for k in feats["kind"]]] if len(feats) else feats
     lam, rel = _observed(feats, medium) if len(feats) else (np.array([]), np.array([]))
