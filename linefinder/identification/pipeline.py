@@ -58,7 +58,7 @@ BROAD_RESOLUTION = 3.0
 # systematic shift, in FWHM, of the centre of a real line profile fitted as a Gaussian: a
 # rule of thumb of this tool (asymmetric infill, Lorentzian wings and blends move a centre by
 # a few per cent of the width)
-PROFILE_SHIFT = 0.03
+PROFILE_SHIFT = 0.1
 # the pixel check reads the RERANK_TOP best solutions; one of them within RERANK_NATS of the
 # first's score that the pixels hold secure, where the first's are not, goes first (rules of
 # this tool)
