@@ -51,6 +51,10 @@ __all__ = ["identify", "Identification", "default_species", "read_line_list"]
 # evidence of a companion match relative to a hydrogen line's: full weight gave more named lines
 # at equal purity than half on the synthetic suite (benchmarks/); a rule of this tool
 COMPANION_WEIGHT = 1.0
+# H-D isotope shift of the Balmer and Lyman lines (about -82 km/s: the reduced-mass ratio,
+# a textbook value) and the resolution elements it must span for D to be searched by default
+D_SHIFT_KMS = 82.0
+D_RESOLUTION_ELEMENTS = 5.0
 # a secondary species' line on a primary line counts this much of its strength (`_shadowed`);
 # a rule of this tool
 SHADOW_WEIGHT = 0.1
@@ -97,8 +101,15 @@ def regime(lam_vac_m):
     return "optical"
 
 
-def default_species(reg):
-    return {"xray": XRAY_IONS, "radio": ["H", "He", "C"], "optical": ["H", "He II"]}[reg]
+def default_species(reg, resolution=None):
+    """Species searched when none are named.  Deuterium joins in the optical and
+    ultraviolet where the resolving power parts its lines from hydrogen's cleanly (the
+    isotope shift, -82 km/s, over D_RESOLUTION_ELEMENTS resolution elements): laboratory
+    and echelle spectra."""
+    names = {"xray": XRAY_IONS, "radio": ["H", "He", "C"], "optical": ["H", "He II"]}[reg]
+    if reg == "optical" and resolution and resolution * D_SHIFT_KMS / C_KMS >= D_RESOLUTION_ELEMENTS:
+        names = names + ["D"]
+    return list(names)
 
 
 def _n_ranges(reg, lam_rest_min, lam_rest_max):
@@ -209,7 +220,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
         zmax = 0.005 if ev.regime == "radio" else 7.0
     if z is not None:
         zmin = zmax = z
-    names = list(species) if species else default_species(ev.regime)
+    names = list(species) if species else default_species(ev.regime, ev.R)
     ls = _line_set(ev, names, zmin, zmax, series, companions, extra_lines)
     s_range = (np.log1p(zmin), np.log1p(zmax))
     # measured fluxes should follow the expected strengths within a factor ~3 (emission) or
