@@ -19,11 +19,9 @@ For each contiguous segment of a prepared spectrum:
    masked pixels and poor fits.
 """
 
-from dataclasses import dataclass, field
 from functools import partial
 
 import numpy as np
-from astropy.table import QTable
 
 from ..errors import SpectrumFormatError
 from ..spectral.spectrum import prepare, segments
@@ -32,24 +30,11 @@ from .continuum import find_steps, fit_continuum as _fit_continuum, robust_noise
 from .deblend import (fit_all_groups, group_model, make_groups, merge_weak_blends, split_wide,
                       sync_fits, usable)
 from .flags import Flag, has_flag
+from .table import EQUIVALENT_WIDTH_CONVENTION, FEATURE_COLUMNS, FeatureResult, feature_table
 
 __all__ = ["find_features", "FeatureResult", "FEATURE_COLUMNS", "EQUIVALENT_WIDTH_CONVENTION"]
 
-FEATURE_COLUMNS = ["center", "center_err", "fwhm", "fwhm_err", "amplitude", "flux", "flux_err",
-                   "equivalent_width", "snr", "kind", "flags"]
-EQUIVALENT_WIDTH_CONVENTION = "W = integral of (1 - F/Fc): positive for absorption, negative for emission"
 DEFAULT_FWHM_PX = 3.0
-
-
-@dataclass
-class FeatureResult:
-    """Features of one spectrum with what was used to find them."""
-    features: QTable
-    spectrum: object
-    continuum: np.ndarray
-    noise: np.ndarray
-    meta: dict = field(default_factory=dict)
-    scan: object = None     #: the scale-space scan (`scales.ScaleScan`) where one was made
 
 
 def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorption"),
@@ -136,7 +121,7 @@ def find_features(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorpt
         again.features.meta["resolution_source"] = res_source
         again.meta["resolution_source"] = res_source
         return again
-    table = _table(rows, spec, cont_all, kinds)
+    table = feature_table(rows, spec, kinds)
     table.meta.update({"source": spec.source, "medium": spec.medium, "detector": "profiles",
                        "medium_source": spec.meta.get("medium_source"),
                        "unit": str(spec.axis.unit), "noise_source": noise_source,
@@ -303,30 +288,3 @@ def _rows(feats, x, dx, n, fwhm_px, threshold, good, cont, offset):
                      "pixel": ipx + offset,
                      "group": g["group"]})
     return rows
-
-
-def _table(rows, spec, cont_all, kinds):
-    unit = spec.axis.unit
-    fu = spec.flux.unit
-    rows = [r for r in rows if r["kind"] in kinds]
-    rows.sort(key=lambda r: r["center"])
-    t = QTable()
-    col = lambda k: np.array([r[k] for r in rows], dtype=float)  # noqa: E731
-    t["center"] = col("center") * unit
-    t["center_err"] = col("center_err") * unit
-    t["fwhm"] = col("fwhm") * unit
-    t["fwhm_err"] = col("fwhm_err") * unit
-    t["amplitude"] = col("amplitude") * fu
-    t["flux"] = col("flux") * fu * unit
-    t["flux_err"] = col("flux_err") * fu * unit
-    t["equivalent_width"] = col("equivalent_width") * unit
-    t["equivalent_width_err"] = col("equivalent_width_err") * unit
-    t["equivalent_width"].info.description = EQUIVALENT_WIDTH_CONVENTION
-    t["snr"] = col("snr")
-    t["kind"] = np.array([r["kind"] for r in rows], dtype=str) if rows else np.array([], dtype=str)
-    t["flags"] = np.array([r["flags"] for r in rows], dtype=str) if rows else np.array([], dtype=str)
-    t["profile"] = np.array([r["profile"] for r in rows], dtype=str) if rows else np.array([], dtype=str)
-    t["continuum"] = col("continuum") * fu
-    t["chi2_red"] = col("chi2_red")
-    t["pixel"] = np.array([r["pixel"] for r in rows], dtype=int)
-    return t

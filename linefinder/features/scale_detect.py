@@ -22,6 +22,7 @@ from ..spectral.spectrum import prepare
 from .candidates import find_spikes
 from .continuum import robust_noise
 from .flags import Flag
+from .table import EQUIVALENT_WIDTH_CONVENTION, FeatureResult, feature_table
 from .joint import fit_joint, refine_centres
 from .scales import GAUSS_FWHM, scale_peaks, scan_scales
 
@@ -58,8 +59,6 @@ def _noise(spec, y, good):
 
 def find_features_scales(spec, *, snr=5.0, resolution=None, kinds=("emission", "absorption")):
     """Find and measure features by the scale-space scan; returns a `FeatureResult`."""
-    from .detect import EQUIVALENT_WIDTH_CONVENTION, FeatureResult, _table
-
     spec = prepare(spec)
     x = spec.axis.value.astype(float)
     y = spec.flux.value.astype(float)
@@ -104,7 +103,7 @@ def find_features_scales(spec, *, snr=5.0, resolution=None, kinds=("emission", "
             res_source = "estimated from the narrowest strong features"
     rows = [_row(peaks[i], a, e, c, ce, scan, u, log_axis)
             for i, a, e, c, ce in zip(keep, amp, err, centres, c_err)]
-    table = _table(rows, spec, None, kinds)
+    table = feature_table(rows, spec, kinds)
     table.meta.update({"source": spec.source, "medium": spec.medium,
                        "medium_source": spec.meta.get("medium_source"),
                        "unit": str(spec.axis.unit), "noise_source": noise_source,
