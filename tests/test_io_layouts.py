@@ -88,3 +88,65 @@ def test_list_works_on_every_command_before_any_selection(command, capsys):
     assert "5 spectra, arms B, R, Z joined" in out and "--index 3: TARGETID=616088619186127404 OBJTYPE=SKY" in out
     assert main([command, str(REAL / "sdss_ngc3073.fits"), "--list"]) == 0
     assert "default: HDU 1 'COADD' (the coadd" in capsys.readouterr().out
+
+
+def _standard_star_table(path, *, tnull=None, err=None, quality=None, quality_doc=None,
+                         ucd=None):
+    """A FITS binary table written the way some standard-star archives write theirs."""
+    lam = np.linspace(4000.0, 7000.0, 400)
+    flux = 1e-13 * (lam / 5000.0) ** -2
+    cols = [fits.Column(name="WAVELENGTH", format="D", unit="Angstrom", array=lam),
+            fits.Column(name="FLUX", format="E", unit="erg/(s cm2 Angstrom)", array=flux)]
+    if err is not None:
+        cols.append(fits.Column(name="ERROR", format="E", unit="erg/(s cm2 Angstrom)", array=err))
+    if quality is not None:
+        cols.append(fits.Column(name=quality[0], format="J", array=quality[1]))
+    hdu = fits.BinTableHDU.from_columns(cols)
+    if tnull is not None:
+        # a float column with a TNULL: the standard allows TNULLn for integer columns only
+        hdu.header["TNULL2"] = tnull
+        hdu.data["FLUX"][10:13] = tnull
+    if quality_doc is not None:
+        k = 3 + (err is not None)
+        hdu.header[f"TTYPE{k}"] = (quality[0], quality_doc)
+    if ucd is not None:
+        hdu.header["TUCD1"] = ucd
+    fits.HDUList([fits.PrimaryHDU(), hdu]).writeto(path)
+    return lam, flux
+
+
+def test_float_tnull_is_read_as_missing_and_said_once(tmp_path):
+    path = tmp_path / "star_tnull.fits"
+    _standard_star_table(path, tnull=-999.0)
+    spec = lf.read_spectrum(path)
+    missing = spec.mask | ~np.isfinite(spec.flux.value)
+    assert missing[10:13].all() and not missing[:10].any()
+    notes = spec.meta["read_notes"]
+    assert sum("TNULL" in n for n in notes) == 1
+
+
+def test_an_error_column_of_nulls_is_dropped(tmp_path):
+    path = tmp_path / "star_nullerr.fits"
+    _standard_star_table(path, err=np.full(400, np.nan))
+    spec = lf.read_spectrum(path)
+    assert spec.uncertainty is None
+    assert any("only null values" in n for n in spec.meta["read_notes"])
+
+
+@pytest.mark.parametrize("name,doc,bad_when", [("QUALITY", None, 1), ("GOOD", None, 0),
+                                               ("QUALITY", "1 = good pixel", 0)])
+def test_quality_columns_of_either_sense(tmp_path, name, doc, bad_when):
+    q = np.zeros(400, int) if bad_when == 1 else np.ones(400, int)
+    q[50:55] = bad_when
+    path = tmp_path / "star_quality.fits"
+    _standard_star_table(path, quality=(name, q), quality_doc=doc)
+    spec = lf.read_spectrum(path)
+    assert spec.mask[50:55].all() and spec.mask.sum() == 5
+
+
+def test_air_wavelengths_from_the_ucd(tmp_path):
+    # IVOA UCD1+ vocabulary: em.wl;obs.atmos marks wavelengths measured in air
+    path = tmp_path / "star_ucd.fits"
+    _standard_star_table(path, ucd="em.wl;obs.atmos")
+    spec = lf.read_spectrum(path)
+    assert spec.medium == "air" and "UCD" in spec.meta["medium_source"]

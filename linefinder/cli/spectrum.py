@@ -1,5 +1,7 @@
 """``linefinder peaks``: measured features of a spectrum."""
 
+import sys
+
 import numpy as np
 from astropy import units as u
 from astropy.table import Table
@@ -55,8 +57,11 @@ def load_input(args):
         raise SpectrumFormatError("--snr must be positive")
     if args.resolution is not None and not args.resolution > 0:
         raise SpectrumFormatError("--resolution must be positive")
-    return read_input(args.spectrum, index=args.index, hdu=args.hdu, medium=args.medium,
+    data = read_input(args.spectrum, index=args.index, hdu=args.hdu, medium=args.medium,
                       columns=args.columns, input_unit=args.input_unit)
+    for note in data.meta.get("read_notes", []):    # what the reader noticed, said once
+        print(f"note: {args.spectrum}: {note}", file=sys.stderr)
+    return data
 
 
 def _convert(values, unit_from, unit_to):

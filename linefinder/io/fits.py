@@ -36,21 +36,46 @@ def is_fits(path):
 
 
 def _open(path):
+    """All HDUs read into memory.  The library's warnings about the file (a float TNULLn,
+    a non-standard keyword) are kept, one line each, in ``hdul.notes``, not raised: only
+    a file the library cannot read (truncated, not FITS) is an error."""
     hdul = None
     try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("error")
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
             with open(path, "rb") as fh:
                 hdul = fits.open(fh, memmap=False, lazy_load_hdus=False)
                 for h in hdul:
                     _ = h.data  # force reading: truncated files fail here
-                hdul = fits.HDUList([h.copy() for h in hdul])
+                hdul = fits.HDUList([_copy(h) for h in hdul])
+        notes = []
+        for w in caught:
+            text = str(w.message).splitlines()[0] if str(w.message) else type(w.message).__name__
+            if "truncated" in text.lower():
+                raise SpectrumFormatError(f"{path}: not a readable FITS file ({text})")
+            if text not in notes:
+                notes.append(text)
+        hdul.notes = notes
         return hdul
-    except FileNotFoundError:
+    except (FileNotFoundError, SpectrumFormatError):
         raise
     except Exception as exc:  # astropy raises several types for broken files
         text = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         raise SpectrumFormatError(f"{path}: not a readable FITS file ({text})") from None
+
+
+def _copy(h):
+    """An in-memory copy of an HDU, keeping the comments of its column keywords (a
+    column's description can say what its values mean: "1 = good") and its TNULLn and
+    TUCDn keywords."""
+    c = h.copy()
+    for key in h.header:
+        if key.startswith(("TTYPE", "TCOMM", "TDOC")) and key in c.header:
+            c.header.comments[key] = h.header.comments[key]
+        elif key.startswith(("TNULL", "TUCD")) and key not in c.header:
+            # (a float TNULLn the library will not carry: the reader applies it itself)
+            c.header[key] = h.header[key]
+    return c
 
 
 def _name(h):
@@ -402,9 +427,28 @@ def _read_table(path, hdul, tables, index, medium, input_unit):
     fl_name = _find(cols, roles.FLUX)
     vector = np.ndim(data[fl_name]) == 2
 
+    notes = list(getattr(hdul, "notes", []))
+    # TNULLn as the header states it (the library drops a float one, with a warning)
+    nulls = {c.name: h.header.get(f"TNULL{k}", c.null) for k, c in enumerate(h.columns, 1)}
+
     def column(name):
         values = np.asarray(data[name], dtype=float)
-        return values[row] if vector else values
+        values = values[row] if vector else values
+        null = nulls.get(name)
+        if null is not None and str(null).strip() != "":
+            # a declared null value, even where the standard allows none (float columns):
+            # those pixels are missing
+            try:
+                hit = values == float(null)
+            except (TypeError, ValueError):
+                hit = np.zeros(len(values), bool)
+            if hit.any():
+                values = np.where(hit, np.nan, values)
+                note = f"column {name}: {int(hit.sum())} values equal to TNULL = {null} read as missing"
+                if note not in notes:
+                    # (in place of the library's warning about the same keyword)
+                    notes[:] = [n for n in notes if "TNULL" not in n] + [note]
+        return values
 
     try:
         axis = column(ax_name)
@@ -433,16 +477,28 @@ def _read_table(path, hdul, tables, index, medium, input_unit):
     for kind, names in ERROR_ROLES:
         name = _find(cols, names)
         if name:
-            sigma = to_sigma(kind, column(name))
+            values = column(name)
+            if not np.isfinite(values).any():
+                notes.append(f"column {name} holds only null values: dropped (noise estimated)")
+                continue
+            sigma = to_sigma(kind, values)
             noise_source = f"file (column {name}{', inverse variance' if kind == 'ivar' else ''})"
             break
-    mask_name = _find(cols, roles.MASK)
-    mask = column(mask_name) != 0 if mask_name else None
+    mask_name = _find(cols, roles.MASK) or _find(cols, GOOD_COLUMNS)
+    mask = None
+    if mask_name:
+        q = column(mask_name)
+        if _good_is_one(h.header, cols, mask_name):
+            mask = q != 1
+            notes.append(f"column {mask_name}: 1 = good pixel, anything else masked")
+        else:
+            mask = q != 0
     try:
         flux_unit = parse_flux_unit(col_units.get(fl_name) or h.header.get("BUNIT"))
     except UnitsError:
         flux_unit = u.dimensionless_unscaled
-    ctype = "AWAV" if ax_name.lower() in ("wave_air", "awav") else ""
+    ctype = "AWAV" if ax_name.lower() in ("wave_air", "awav") or _ucd_air(h.header, cols, ax_name) \
+        else ""
     if ax_name.lower() == "wave_vac":
         ctype = "WAVE"
     if not unit.is_equivalent(u.m):
@@ -452,9 +508,35 @@ def _read_table(path, hdul, tables, index, medium, input_unit):
             "axis_unit_source": unit_source, "medium": med, "medium_source": med_src,
             "noise_source": noise_source, "columns": [ax_name, fl_name],
             "resolution": _resolution(h.header) or _resolution(hdul[0].header),
-            "object": str(hdul[0].header.get("OBJECT", "")).strip()}
+            "object": str(hdul[0].header.get("OBJECT", "")).strip(), "read_notes": notes}
+    if ctype == "AWAV" and not medium:
+        meta["medium_source"] = f"UCD of column {ax_name} (em.wl;obs.atmos: air)" \
+            if _ucd_air(h.header, cols, ax_name) else meta["medium_source"]
     return SpectrumData(axis=axis * unit, flux=flux * flux_unit,
                         uncertainty=None if sigma is None else sigma * flux_unit, mask=mask, meta=meta)
+
+
+# quality columns whose documented sense is 1 = good (names; a TTYPE comment or TDOC saying
+# "1 = good" does the same for any mask column)
+GOOD_COLUMNS = ("good", "goodpix", "good_pixel", "valid", "use")
+
+
+def _good_is_one(header, cols, name):
+    """Does the file document `name` as 1 = good (by its name or its description)?"""
+    if name.lower() in GOOD_COLUMNS:
+        return True
+    k = cols.index(name) + 1
+    text = " ".join(str(header.get(key, "")) for key in (f"TDOC{k}", f"TCOMM{k}")) + " " + \
+        str(header.comments[f"TTYPE{k}"] if f"TTYPE{k}" in header else "")
+    text = text.lower().replace(" ", "")
+    return "1=good" in text or "1:good" in text
+
+
+def _ucd_air(header, cols, name):
+    """Is the axis column's UCD (TUCDn) that of wavelengths in air (em.wl;obs.atmos)?"""
+    k = cols.index(name) + 1
+    ucd = str(header.get(f"TUCD{k}", "")).lower()
+    return "em.wl" in ucd and "obs.atmos" in ucd
 
 
 def _read_with_specutils(path, medium):
