@@ -4,7 +4,9 @@ Run:  python benchmarks/bench_real.py [--timeout 60]
 
 Prints for every file: loaded?, seconds, z (or velocity) found against the expected value
 from tests/data/real/README.md (origin and source of each value there), status, hydrogen
-lines named against those expected, hydrogen labels not expected, and unidentified features.
+lines named against those expected, hydrogen labels not expected, unidentified features,
+and the robust width of (data - continuum) / noise over line-free pixels (about 1 when the
+continuum follows the data and the noise is right).
 Then the time of identify on a synthetic 4000-pixel spectrum in the same run.  Every
 feature detector named in --detector gets its own table, in one run.  Times are after a
 warm-up identification of a synthetic spectrum in the same process.  Nothing is
@@ -48,9 +50,25 @@ def _run(name, detector, queue):
         queue.put({"error": str(exc).splitlines()[0][:70], "seconds": time.perf_counter() - t0})
         return
     labels = [str(x) for x in res.features["label"] if str(x)] if len(res.features) else []
-    queue.put({"seconds": time.perf_counter() - t0, "z": res.z, "status": res.status,
+    queue_extra = {"resid_width": _residual_width(res.feature_result)}
+    queue.put({**queue_extra, "seconds": time.perf_counter() - t0, "z": res.z, "status": res.status,
                "labels": labels, "n_unidentified": int(sum(1 for x in res.features["label"]
                                                            if not str(x))) if len(res.features) else 0})
+
+
+def _residual_width(fr):
+    """Robust width (1.4826 MAD) of (data - continuum) / noise over line-free pixels: those
+    beyond 2 FWHM of every feature found.  Noise-like residuals give about 1."""
+    if fr is None:
+        return float("nan")
+    x = fr.spectrum.axis.value
+    y = fr.spectrum.flux.value
+    free = ~np.asarray(fr.spectrum.mask, bool)
+    for c, w in zip(fr.features["center"].value, fr.features["fwhm"].value):
+        free &= np.abs(x - c) > 2 * abs(w)
+    r = ((y - fr.continuum) / fr.noise)[free]
+    r = r[np.isfinite(r)]
+    return float(1.4826 * np.median(np.abs(r - np.median(r)))) if len(r) else float("nan")
 
 
 def _one(name, detector, timeout):
@@ -103,7 +121,7 @@ def main():
 
 def _table(detector, timeout):
     print(f"{'file':32s} {'s':>6s} {'z found':>10s} {'expected':>9s} {'Δv km/s':>8s} {'status':9s} "
-          f"{'H named/exp':>11s} {'extra H':>7s} {'unid':>4s}  verdict")
+          f"{'H named/exp':>11s} {'extra H':>7s} {'unid':>4s} {'resid':>5s}  verdict")
     right = 0
     for name, (_, z_exp, lines_exp) in EXPECTED.items():
         r = _one(name, detector, timeout)
@@ -124,7 +142,8 @@ def _table(detector, timeout):
         zs = f"{z:10.5f}" if z is not None and np.isfinite(z) else f"{'-':>10s}"
         ze = f"{z_exp:9.5f}" if z_exp is not None else f"{'no H':>9s}"
         print(f"{name:32s} {r['seconds']:6.2f} {zs} {ze} {dv:8.0f} {r['status']:9s} "
-              f"{len(found):>5d}/{len(lines_exp):<5d} {len(extra):7d} {r['n_unidentified']:4d}  "
+              f"{len(found):>5d}/{len(lines_exp):<5d} {len(extra):7d} {r['n_unidentified']:4d} "
+              f"{r['resid_width']:5.2f}  "
               f"{'right' if ok else 'WRONG SECURE' if wrong_secure else 'wrong'}")
     print(f"right: {right}/{len(EXPECTED)} (z within {TOL_KMS:.0f} km/s and every expected line named, "
           "or no hydrogen where none is expected)")
