@@ -175,6 +175,10 @@ def _label_row(axl, ax, centres, names, colors, fontsize=7):
                  color=color)
 
 
+# a continuum spanning more than this factor is drawn on a log flux scale
+LOG_FLUX_RANGE = 20.0
+
+
 def _plot(result, path_png, path_svg):
     import matplotlib
 
@@ -203,6 +207,8 @@ def _plot(result, path_png, path_svg):
         ax.fill_between(x, y - sig, y + sig, where=good, color="0.7", alpha=0.6, lw=0,
                         label="1σ uncertainty")
         ax.plot(x, fr.continuum, color="tab:orange", lw=1, label="continuum")
+        pad = 0.01 * (np.nanmax(x) - np.nanmin(x))
+        ax.set_xlim(np.nanmin(x) - pad, np.nanmax(x) + pad)     # the data's range, not more
         with np.errstate(invalid="ignore", divide="ignore"):
             axr.plot(x, np.where(good, (y - fr.continuum) / sig, np.nan), lw=0.6, color="k")
         axr.axhline(0, color="tab:orange", lw=0.8)
@@ -223,7 +229,13 @@ def _plot(result, path_png, path_svg):
                         label=lab, solid_capstyle="butt")
         top = np.nanmax(np.where(good, y + sig, np.nan)) if good.any() else 1.0
         bottom = np.nanmin(np.where(good, y - sig, np.nan)) if good.any() else 0.0
-        ax.set_ylim(bottom - 0.05 * (top - bottom), top + 0.08 * (top - bottom))
+        cont = np.asarray(fr.continuum, float)[good]
+        if len(cont) and np.nanmin(cont) > 0 and np.nanmax(cont) > LOG_FLUX_RANGE * np.nanmin(cont):
+            # a flux spanning decades (a hot star's UV rise) is drawn on a log scale
+            ax.set_yscale("log")
+            ax.set_ylim(0.5 * np.nanmin(cont), 1.5 * top)
+        else:
+            ax.set_ylim(bottom - 0.05 * (top - bottom), top + 0.08 * (top - bottom))
     centres = [f["center"][i].to_value(unit, equivalencies=u.spectral()) for i in range(len(f))]
     names, colors = [], []
     for i, c in enumerate(centres):
