@@ -22,6 +22,7 @@ from ..spectral.doppler import describe_shift, wavelength_factor
 from ..errors import AccuracyWarning, QuantumNumberError
 from ..physics.levels import level_label
 from ..spectral.medium import AIR_MIN_NM, CONVENTIONAL_AIR_RANGE_NM, _formula, conventional_wavelength, vacuum_to_air
+from .hyperfine_rows import hyperfine_arrays
 from .names import line_labels, series_names
 from ..physics.species import parse_species
 from ..physics.transitions import fine_components, multiplets
@@ -183,7 +184,7 @@ def _merge_blends(arrays, wavelength_nm, resolution, fine):
 def build_catalogue(species, lower, upper, *, fine=False, medium="vacuum", a_values=True,
                     air_formula="morton2000", air_conditions=None, z=None, velocity=None,
                     velocity_convention="optical", wavelength_range=None, min_a=None,
-                    min_intensity=None, resolution=None, cache=True):
+                    min_intensity=None, resolution=None, cache=True, hyperfine=False):
     """Compute a catalogue of hydrogenic lines.
 
     Parameters
@@ -217,6 +218,10 @@ def build_catalogue(species, lower, upper, *, fine=False, medium="vacuum", a_val
         Resolving power R: lines of one species closer than lambda/R merge.
     cache : bool
         Use the disk cache of rest-frame tables.
+    hyperfine : bool
+        Add the hyperfine lines of the 1s and 2s levels of every species whose nucleus has
+        a spin (H I 21 cm, D I 92 cm, T I, 3He II 3.5 cm ...), whatever the n ranges; their
+        positions are measured intervals where known (column ``position_source``).
 
     Returns
     -------
@@ -241,10 +246,15 @@ def build_catalogue(species, lower, upper, *, fine=False, medium="vacuum", a_val
             warnings.warn(f"{sp.name}: lines with n_lower < {RYDBERG_MIN_N} are computed as hydrogenic "
                           "but the real atom's quantum defects shift its low-l levels", AccuracyWarning)
         arrays = _cached_rest_arrays(sp, lower, upper, fine, cache)
-        parts.append(_species_columns(sp, arrays, fine=fine, factor=factor, formula=formula,
-                                      air_conditions=air_conditions,
-                                      wavelength_range=wavelength_range, min_a=min_a,
-                                      min_intensity=min_intensity, resolution=resolution))
+        options = dict(fine=fine, factor=factor, formula=formula, air_conditions=air_conditions,
+                       wavelength_range=wavelength_range, min_a=min_a,
+                       min_intensity=min_intensity, resolution=resolution)
+        part = _species_columns(sp, arrays, **options)
+        if hyperfine:
+            part["position_source"] = np.full(len(part["frequency"]), "theory", dtype="U64")
+            parts.append(part)
+            part = _hyperfine_part(sp, fine, options)
+        parts.append(part)
     if not a_values:   # positions only: the atomic data are not carried into the table
         parts = [{k: v for k, v in part.items() if k not in _ATOMIC_COLUMNS} for part in parts]
     table = _assemble(_merged_columns(parts), fine=fine, a_values=a_values)
@@ -267,9 +277,27 @@ def build_catalogue(species, lower, upper, *, fine=False, medium="vacuum", a_val
         "resolution": resolution, "positions": "multiplet: g_u A_u weighted mean frequency"
         if not fine else "fine-structure components",
         "rel_intensity": "g_u A_u h nu, equal sublevel populations, normalised per species",
+        "hyperfine": bool(hyperfine),
         **describe_shift(z=z, velocity=velocity, convention=velocity_convention),
     })
     return table
+
+
+def _hyperfine_part(sp, fine, options):
+    """The columns of the hyperfine lines of one species (`hyperfine_rows`)."""
+    options = dict(options, min_intensity=None)   # (they have no relative intensity)
+    arrays = hyperfine_arrays(sp, fine)
+    sources = dict(zip(arrays["label"], arrays["position_source"]))
+    cols = _species_columns(sp, arrays, **options)
+    cols["rel_intensity"] = np.full(len(cols["frequency"]), np.nan)
+    cols["position_source"] = np.array([sources[str(lab)] for lab in cols["label"]], dtype="U64")
+    if fine:
+        f_of = {str(lab): (fu, fl) for lab, fu, fl in zip(arrays["label"], arrays["f_upper"],
+                                                           arrays["f_lower"])}
+        cols["transition"] = np.array(
+            [f"{n}S(F={f_of[str(lab)][0]:g})-{n}S(F={f_of[str(lab)][1]:g})"
+             for lab, n in zip(cols["label"], cols["n_upper"])], dtype=str)
+    return cols
 
 
 def _species_columns(sp, arrays, *, fine, factor, formula, air_conditions, wavelength_range,
@@ -386,4 +414,6 @@ def _assemble(c, *, fine, a_values):
     out["n_upper_max"] = c["n_upper_max"]
     if fine:
         out["transition"] = c["transition"]
+    if "position_source" in c:
+        out["position_source"] = c["position_source"]
     return QTable(list(out.values()), names=list(out), copy=False)

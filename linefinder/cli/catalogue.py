@@ -80,7 +80,7 @@ def flatten_lines(table, unit):
         out["f_lu"] = table["f_lu"]
     out["g_lower"] = table["g_lower"]
     out["g_upper"] = table["g_upper"]
-    for extra in ("rel_intensity", "blend", "transition"):
+    for extra in ("rel_intensity", "blend", "transition", "position_source"):
         if extra in table.colnames:
             out[extra] = table[extra]
     out[f"rest_wavelength_vacuum_{sfx}"] = table["rest_wavelength_vacuum"].to_value(wl_unit)
@@ -136,7 +136,7 @@ def _cmd_lines(args):
                             air_conditions=conditions, z=args.z, velocity=velocity,
                             velocity_convention=args.velocity_convention, wavelength_range=wrange,
                             min_a=args.min_a, min_intensity=args.min_intensity,
-                            resolution=args.resolution)
+                            resolution=args.resolution, hyperfine=args.hyperfine)
     flat = flatten_lines(table, unit)
     sfx = unit_suffix(unit if unit.is_equivalent(u.m) else u.nm)
     wl_col = f"wavelength_{'air' if args.medium == 'air' else 'vacuum'}_{sfx}"
@@ -146,6 +146,8 @@ def _cmd_lines(args):
     if not unit.is_equivalent(u.m):
         cols.append(f"position_{unit_suffix(unit)}")
     cols += ["a_ul_s-1", "f_lu", "rel_intensity"]
+    if args.hyperfine:
+        cols.append("position_source")
     return _emit(flat, args, default_columns=cols)
 
 
@@ -179,6 +181,9 @@ def register(sub):
     p.add_argument("--lower", default="1-6", metavar="N[-M]", help="lower n or range (default 1-6)")
     p.add_argument("--upper", default="2-30", metavar="N[-M]", help="upper n or range (default 2-30)")
     p.add_argument("--fine", action="store_true", help="one row per fine-structure component")
+    p.add_argument("--hyperfine", action="store_true",
+                   help="add the hyperfine lines of the 1s and 2s levels (H I 21 cm, D I 92 cm, "
+                        "3He II 3.5 cm ...), whatever --lower/--upper say")
     p.add_argument("--medium", choices=MEDIA, default="vacuum",
                    help="medium of the printed wavelength (conventional: air 200-2000 nm, vacuum elsewhere)")
     p.add_argument("--air-formula", default="morton2000",

@@ -42,6 +42,7 @@ from .lyman_break import break_reading
 from .matching import assign, withdraw_unsupported
 from ..spectral.axis import observed_window, sorted_pixels, vacuum_ln
 from .redshift import _within, classify, refine, search_shift, solution_probability
+from .hyperfine_line import read_hyperfine, with_hyperfine
 from .single_line import reading_candidate, readings_of
 from .pixel_check import PixelReader, capped, support_status
 from ..features.flags import Flag, has_flag, join_flags
@@ -214,6 +215,7 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
     """
     ev = _evidence(data, kinds, snr, resolution, calibration, resolution_fraction,
                    mask_sky, mask_telluric, detector)
+    asked_z = (zmin, zmax)
     if zmin is None:
         zmin = -0.005 if ev.regime == "radio" else 0.0
     if zmax is None:
@@ -262,6 +264,10 @@ def identify(data, *, species=None, z=None, zmin=None, zmax=None, series=None,
                    "companions": [c["name"] for c in ls.comp],
                    "intensity_model": strength_assumption(ev.main_kind),
                    "constants": cat.meta.get("constants"), "catalogue": dict(cat.meta)}
+    if ev.regime == "radio" and ev.feature_result is not None:
+        # the 21-cm family: single lines, read on the pixels (`hyperfine_line`)
+        reading = read_hyperfine(ev.feature_result, species, *asked_z, z=z, kinds=kinds)
+        result = with_hyperfine(result, reading)
     return result
 
 
@@ -313,14 +319,19 @@ def _evidence(data, kinds, snr, resolution, calibration, resolution_fraction, ma
     kinds_arr = np.asarray(feats["kind"]).astype(str) if len(feats) else np.zeros(0, str)
     flux_abs = np.abs(np.asarray(u.Quantity(feats["flux"]).value, dtype=float)) if len(feats) \
         else np.zeros(0)
+    window = observed_window(feature_result, y)
+    # the regime of the spectrum's own window where there is one (a spectrum whose only
+    # line is too faint to be detected as a feature still has a regime)
+    reg = regime(np.exp(np.array(window))) if window is not None else \
+        (regime(lam) if len(lam) else "optical")
     return _Evidence(
         feats=feats, feature_result=feature_result, medium=medium, R=R, y=y, sy=sy,
         sy_meas=sy_meas, w=np.log1p(np.clip(np.nan_to_num(snr_arr, nan=5.0), 0, 1e4)),
         snr=snr_arr, kinds=kinds_arr, use=use, sky=sky, telluric=telluric, flux_abs=flux_abs,
         fwhm=_width_ln(feats), blend=np.array([has_flag(f, Flag.BLEND) for f in feats["flags"]],
                                               dtype=bool),
-        is_freq_axis=is_freq_axis, regime=regime(lam) if len(lam) else "optical",
-        main_kind=_main_kind(snr_arr, kinds_arr, use), window=observed_window(feature_result, y),
+        is_freq_axis=is_freq_axis, regime=reg,
+        main_kind=_main_kind(snr_arr, kinds_arr, use), window=window,
         detector=detector)
 
 
