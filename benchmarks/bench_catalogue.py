@@ -24,11 +24,11 @@ def main():
     tmp = tempfile.mkdtemp(prefix="linefinder-bench-")
     os.environ["LINEFINDER_CACHE_DIR"] = tmp
     t0 = time.perf_counter()
+    import astropy.units as u
     import pandas as pd
 
-    from linefinder import build_catalogue
     import linefinder.spectral.medium as medium
-    import astropy.units as u
+    from linefinder import build_catalogue
 
     medium.refractive_index([500.0] * u.nm)   # pulls in specutils once
     print(f"import (linefinder + specutils + pandas): {time.perf_counter() - t0:.3f} s")

@@ -22,7 +22,6 @@ import numpy as np
 from astropy import units as u
 
 
-
 def _lines_spectrum(rng, n_pix, n_lines, R, snr_range=(5, 100), absorption_fraction=0.3,
                     min_sep_fwhm=4.0):
     """A log-linear spectrum with isolated Gaussian lines of known S/N (invented)."""

@@ -40,7 +40,11 @@ import numpy as np
 def _run_one(args):
     seed, index, noise, max_pixels, detector = args
     from linefinder.identification.pipeline import identify
-    from linefinder.simulate.suite import make_noise_spectrum, make_spectrum, random_parameters
+    from linefinder.simulate.suite import (
+        make_noise_spectrum,
+        make_spectrum,
+        random_parameters,
+    )
 
     rng = np.random.default_rng([seed, index, int(noise)])
     if noise:
@@ -219,8 +223,8 @@ def evaluate(results):
 
 def speed():
     """identify on a 4000-pixel spectrum; matching 1e5 features against 1e6 lines."""
-    from linefinder.identification.pipeline import identify
     from linefinder.identification.matching import assign
+    from linefinder.identification.pipeline import identify
     from linefinder.simulate.suite import make_spectrum
 
     rng = np.random.default_rng(7)

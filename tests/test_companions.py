@@ -7,8 +7,8 @@ from astropy import units as u
 from linefinder.catalogue.build import build_catalogue
 from linefinder.catalogue.companions import COMPANION_LINES, companion_lines
 from linefinder.identification.pipeline import identify
-from linefinder.spectral.medium import vacuum_to_air
 from linefinder.report.summary import summary
+from linefinder.spectral.medium import vacuum_to_air
 from linefinder.spectral.spectrum import SpectrumData
 
 # Standard air wavelengths (Å) of the strong nebular lines as tabulated for nebular work

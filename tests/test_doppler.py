@@ -5,7 +5,11 @@ import pytest
 from astropy import constants as const
 from astropy import units as u
 
-from linefinder.spectral.doppler import ShiftError, velocity_from_factor, wavelength_factor
+from linefinder.spectral.doppler import (
+    ShiftError,
+    velocity_from_factor,
+    wavelength_factor,
+)
 
 
 def test_conventions_agree_at_low_velocity():

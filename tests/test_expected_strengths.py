@@ -4,7 +4,11 @@ import numpy as np
 from astropy import units as u
 
 from linefinder.catalogue.build import build_catalogue
-from linefinder.catalogue.strengths import expected_strengths, multiplet_codes, strength_assumption
+from linefinder.catalogue.strengths import (
+    expected_strengths,
+    multiplet_codes,
+    strength_assumption,
+)
 
 
 def _row(cat, label):

@@ -3,6 +3,7 @@
 import numpy as np
 import pytest
 from astropy import units as u
+from helpers import suite_spectrum
 from scipy.optimize import curve_fit
 from scipy.special import voigt_profile
 
@@ -10,8 +11,6 @@ from linefinder.features.detect import find_features
 from linefinder.features.profiles import GAUSS_FWHM, GroupProblem, fit_groups
 from linefinder.identification.redshift import weighted_shift
 from linefinder.spectral.spectrum import SpectrumData
-
-from helpers import suite_spectrum
 
 
 def _two_gauss(x, a1, m1, s1, a2, m2, s2, c0, c1):

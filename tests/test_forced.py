@@ -4,9 +4,15 @@ import numpy as np
 import pytest
 
 from linefinder.features.continuum import fit_continuum
-from linefinder.identification.forced import (BLOB_WIDTHS, N_BEYOND, bridge_crowded, choose_lines,
-                               fixed_profile_fit,
-                               gaussian_templates, measure_predicted)
+from linefinder.identification.forced import (
+    BLOB_WIDTHS,
+    N_BEYOND,
+    bridge_crowded,
+    choose_lines,
+    fixed_profile_fit,
+    gaussian_templates,
+    measure_predicted,
+)
 
 W = 1e-4     # FWHM in ln wavelength (R = 10 000)
 

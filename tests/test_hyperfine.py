@@ -12,8 +12,12 @@ from astropy import units as u
 import linefinder as lf
 from linefinder.cli.main import main
 from linefinder.errors import SpeciesError
-from linefinder.physics.hyperfine import (fermi_interval_hz, has_hyperfine, hyperfine_interval,
-                                          hyperfine_lines)
+from linefinder.physics.hyperfine import (
+    fermi_interval_hz,
+    has_hyperfine,
+    hyperfine_interval,
+    hyperfine_lines,
+)
 
 # (species, n, measured interval in Hz, relative tolerance of the theory): the measured
 # values are those of the module (hydrogen maser, Hellwig et al. 1970; Kolachevsky et al.

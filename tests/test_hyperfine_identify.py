@@ -8,14 +8,13 @@ from pathlib import Path
 import numpy as np
 import pytest
 from astropy import units as u
+from helpers import gaussian_spectrum
 from scipy.ndimage import convolve1d
 
 import linefinder as lf
 from linefinder.features.table import FeatureResult
 from linefinder.identification.hyperfine_line import read_hyperfine
 from linefinder.spectral.spectrum import prepare
-
-from helpers import gaussian_spectrum
 
 REAL = Path(__file__).parent / "data" / "real"
 C_KMS = 299792.458

@@ -5,16 +5,15 @@ import json
 import numpy as np
 import pytest
 from astropy import units as u
+from helpers import suite_spectrum
 
 from linefinder.catalogue.build import build_catalogue
 from linefinder.identification.pipeline import identify
 from linefinder.io.line_lists import read_line_list
 from linefinder.io.read import read_input
 from linefinder.simulate.scenarios import sample_path
-from linefinder.spectral.spectrum import SpectrumData
 from linefinder.simulate.suite import make_spectrum
-
-from helpers import suite_spectrum
+from linefinder.spectral.spectrum import SpectrumData
 
 
 def _correct(z, z0):

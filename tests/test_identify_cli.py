@@ -7,10 +7,10 @@ import pytest
 from astropy import units as u
 
 from linefinder.cli.main import main
-from linefinder.spectral.doppler import C_KMS
 from linefinder.features.detect import find_features
 from linefinder.io.read import read_input
 from linefinder.simulate.scenarios import sample_path
+from linefinder.spectral.doppler import C_KMS
 from linefinder.spectral.spectrum import SpectrumData
 
 

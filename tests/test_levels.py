@@ -13,9 +13,14 @@ Reference values (each beside its check):
 import numpy as np
 import pytest
 
-from linefinder.physics import constants as K
 from linefinder.errors import QuantumNumberError
-from linefinder.physics.levels import binding_energy_hz, enumerate_levels, level_table, shift_terms_hz
+from linefinder.physics import constants as K
+from linefinder.physics.levels import (
+    binding_energy_hz,
+    enumerate_levels,
+    level_table,
+    shift_terms_hz,
+)
 
 NIST_H_N2 = {  # Kramida 2010 via NIST ASD, cm^-1 above 1S1/2
     (2, 0, 0.5): 82258.9543992821,

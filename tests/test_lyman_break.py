@@ -9,9 +9,13 @@ from astropy import units as u
 from linefinder.catalogue.build import build_catalogue
 from linefinder.cli.main import main
 from linefinder.features.continuum import find_steps, fit_continuum
-from linefinder.identification.pipeline import identify
-from linefinder.identification.lyman_break import continuum_step, is_break, mean_transmission
 from linefinder.features.profiles import GAUSS_FWHM
+from linefinder.identification.lyman_break import (
+    continuum_step,
+    is_break,
+    mean_transmission,
+)
+from linefinder.identification.pipeline import identify
 from linefinder.spectral.spectrum import SpectrumData
 
 

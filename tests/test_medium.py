@@ -7,8 +7,14 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from specutils.utils.wcs_utils import refraction_index as specutils_index
 
-from linefinder.spectral.medium import (AIR_FORMULAS, air_to_vacuum, ciddor_index, conventional_wavelength,
-                               refractive_index, vacuum_to_air)
+from linefinder.spectral.medium import (
+    AIR_FORMULAS,
+    air_to_vacuum,
+    ciddor_index,
+    conventional_wavelength,
+    refractive_index,
+    vacuum_to_air,
+)
 
 
 @pytest.mark.parametrize("formula, method", [(k, v) for k, v in AIR_FORMULAS.items()])

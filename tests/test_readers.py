@@ -8,8 +8,8 @@ from astropy.table import QTable, Table
 
 from linefinder.cli.main import main
 from linefinder.errors import SpectrumFormatError
-from linefinder.io.units import parse_flux_unit, parse_spectral_unit
 from linefinder.io.read import read_input
+from linefinder.io.units import parse_flux_unit, parse_spectral_unit
 
 
 def _image(path, data, **cards):

@@ -8,11 +8,11 @@ growth), `companions` lists the strong non-hydrogenic lines that come with
 hydrogen lines, and `contaminants` the night-sky and telluric features.
 """
 
-from .build import build_catalogue, parse_range, cache_dir, CATALOGUE_COLUMNS, MEDIA
-from .names import line_label, line_labels, series_name, series_names
-from .strengths import CASE_B_HBETA, expected_strengths, strength_assumption
+from .build import CATALOGUE_COLUMNS, MEDIA, build_catalogue, cache_dir, parse_range
 from .companions import COMPANION_LINES, companion_lines
 from .contaminants import SKY_LINES_AIR, TELLURIC_BANDS_AIR, sky_mask
+from .names import line_label, line_labels, series_name, series_names
+from .strengths import CASE_B_HBETA, expected_strengths, strength_assumption
 
 __all__ = ["build_catalogue", "parse_range", "cache_dir", "CATALOGUE_COLUMNS", "MEDIA",
            "line_label", "line_labels", "series_name", "series_names", "CASE_B_HBETA",

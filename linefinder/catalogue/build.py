@@ -16,16 +16,22 @@ import numpy as np
 from astropy import units as u
 from astropy.table import MaskedColumn, QTable
 
-from ..physics import constants as K
 from .._version import __version__
-from ..spectral.doppler import describe_shift, wavelength_factor
 from ..errors import AccuracyWarning, QuantumNumberError
+from ..physics import constants as K
 from ..physics.levels import level_label
-from ..spectral.medium import AIR_MIN_NM, CONVENTIONAL_AIR_RANGE_NM, _formula, conventional_wavelength, vacuum_to_air
-from .hyperfine_rows import hyperfine_arrays
-from .names import line_labels, series_names
 from ..physics.species import parse_species
 from ..physics.transitions import fine_components, multiplets
+from ..spectral.doppler import describe_shift, wavelength_factor
+from ..spectral.medium import (
+    AIR_MIN_NM,
+    CONVENTIONAL_AIR_RANGE_NM,
+    _formula,
+    conventional_wavelength,
+    vacuum_to_air,
+)
+from .hyperfine_rows import hyperfine_arrays
+from .names import line_labels, series_names
 
 __all__ = ["build_catalogue", "parse_range", "cache_dir", "CATALOGUE_COLUMNS", "MEDIA"]
 

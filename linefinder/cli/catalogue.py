@@ -8,11 +8,11 @@ from astropy import units as u
 from astropy.table import Table
 
 from ..catalogue.build import MEDIA, build_catalogue
-from ..spectral.doppler import VELOCITY_CONVENTIONS
 from ..errors import UnitsError
-from ..physics.levels import level_table
-from ..spectral.medium import AIR_FORMULAS
 from ..io.tables import json_default, table_to_records, write_table
+from ..physics.levels import level_table
+from ..spectral.doppler import VELOCITY_CONVENTIONS
+from ..spectral.medium import AIR_FORMULAS
 
 __all__ = ["register", "parse_unit", "unit_suffix", "flatten_lines", "parse_spectral_range"]
 

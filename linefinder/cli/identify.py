@@ -3,25 +3,29 @@
 import json
 import sys
 
-from .spectrum import add_spectrum_options, kinds_from_args, list_input, load_input
+from ..features.flags import Flag, has_flag
 from ..identification.pipeline import identify
 from ..io.line_lists import read_line_list
-from ..report.summary import lyman_break_text, summary, write_report
 from ..io.tables import json_default
-from ..features.flags import Flag, has_flag
+from ..report.summary import lyman_break_text, summary, write_report
+from .spectrum import add_spectrum_options, kinds_from_args, list_input, load_input
 
-__all__ = ["register"]
+__all__ = ["register", "add_identify_options", "identify_options"]
+
+
+def identify_options(args):
+    """The identification options of a parsed command line, as `identify` keywords."""
+    return dict(species=args.species, z=getattr(args, "z", None), zmin=args.zmin,
+                zmax=args.zmax, series=args.series, kinds=kinds_from_args(args), snr=args.snr,
+                resolution=args.resolution, mask_sky=args.mask_sky,
+                detector=getattr(args, "detector", "auto"), mask_telluric=args.mask_telluric,
+                companions=not getattr(args, "no_companions", False))
 
 
 def _run(args):
     extra = read_line_list(args.extra_lines) if getattr(args, "extra_lines", None) else None
     data = load_input(args)
-    return identify(data, species=args.species, z=getattr(args, "z", None), zmin=args.zmin,
-                    zmax=args.zmax, series=args.series, kinds=kinds_from_args(args), snr=args.snr,
-                    resolution=args.resolution, extra_lines=extra, mask_sky=args.mask_sky,
-                    detector=getattr(args, "detector", "auto"),
-                    mask_telluric=args.mask_telluric,
-                    companions=not getattr(args, "no_companions", False))
+    return identify(data, extra_lines=extra, **identify_options(args))
 
 
 def _print_summary(res, s, source):
@@ -110,6 +114,12 @@ def _cmd_demo(args):
 
 def _options(p):
     add_spectrum_options(p)
+    add_identify_options(p)
+    p.add_argument("--format", choices=["text", "json"], default="text")
+
+
+def add_identify_options(p):
+    """What identification looks for (identify, redshift and batch)."""
     p.add_argument("--species", nargs="+", metavar="NAME", help="species to consider (default by regime)")
     p.add_argument("--series", nargs="+", metavar="NAME", help="only these series (Balmer, Lyman, ...)")
     p.add_argument("--zmin", type=float, help="lowest redshift searched (default 0; radio -0.005)")
@@ -122,7 +132,6 @@ def _options(p):
     p.add_argument("--no-companions", action="store_true",
                    help="do not use the strong nebular lines ([O III], [N II], C IV ...) as "
                         "evidence for the redshift in emission spectra")
-    p.add_argument("--format", choices=["text", "json"], default="text")
 
 
 def register(sub):

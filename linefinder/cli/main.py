@@ -28,11 +28,12 @@ class _Parser(argparse.ArgumentParser):
 
 
 def _subcommands():
+    from . import batch as cli_batch
     from . import catalogue as cli_catalogue
     from . import identify as cli_identify
     from . import spectrum as cli_spectrum
 
-    return [cli_catalogue, cli_spectrum, cli_identify]
+    return [cli_catalogue, cli_spectrum, cli_identify, cli_batch]
 
 
 def build_parser():

@@ -6,18 +6,24 @@ import numpy as np
 from astropy import units as u
 from astropy.table import Table
 
-from .catalogue import _common_output, _emit, parse_unit
 from ..errors import SpectrumFormatError
 from ..features.detect import FEATURE_COLUMNS, find_features
 from ..io.read import describe_input, is_peak_list, read_input
+from .catalogue import _common_output, _emit, parse_unit
 
-__all__ = ["register", "add_spectrum_options", "list_input", "load_input", "features_in_unit", "kinds_from_args"]
+__all__ = ["register", "add_spectrum_options", "add_reading_options", "list_input", "load_input", "features_in_unit", "kinds_from_args"]
 
 
 def add_spectrum_options(p):
-    """Options shared by every command that reads a spectrum."""
+    """Options shared by every command that reads one spectrum."""
     p.add_argument("spectrum", metavar="SPECTRUM", help="FITS, CSV/TSV/text or ECSV file")
     p.add_argument("--index", type=int, help="which spectrum of a file holding several (0-based)")
+    add_reading_options(p)
+    p.add_argument("--list", action="store_true", help="list what the file holds and stop")
+
+
+def add_reading_options(p):
+    """How spectra are read and their features found (every spectrum command, batch too)."""
     p.add_argument("--hdu", help="FITS extension (number or EXTNAME)")
     p.add_argument("--medium", choices=["air", "vacuum"], help="override the medium the file states")
     p.add_argument("--columns", metavar="AXIS,FLUX[,ERR]", help="text columns by name or 0-based number")
@@ -30,7 +36,6 @@ def add_spectrum_options(p):
                         "scales where the strong lines are broad, else profiles)")
     p.add_argument("--emission", action="store_true", help="emission features only")
     p.add_argument("--absorption", action="store_true", help="absorption features only")
-    p.add_argument("--list", action="store_true", help="list what the file holds and stop")
 
 
 def kinds_from_args(args):

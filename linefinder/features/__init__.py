@@ -7,8 +7,13 @@ joint fits and repairs their components, and `detect` (`find_features`)
 runs the whole path and returns a table with honest uncertainties.
 """
 
-from .detect import find_features, FeatureResult, FEATURE_COLUMNS, EQUIVALENT_WIDTH_CONVENTION
-from .continuum import fit_continuum, robust_noise, find_steps
+from .continuum import find_steps, fit_continuum, robust_noise
+from .detect import (
+           EQUIVALENT_WIDTH_CONVENTION,
+           FEATURE_COLUMNS,
+           FeatureResult,
+           find_features,
+)
 
 __all__ = ["find_features", "FeatureResult", "FEATURE_COLUMNS", "EQUIVALENT_WIDTH_CONVENTION", "fit_continuum",
            "robust_noise", "find_steps"]

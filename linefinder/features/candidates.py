@@ -15,7 +15,6 @@ from scipy.signal import find_peaks, oaconvolve
 
 from .profiles import GAUSS_FWHM
 
-
 SCALES = (1, 2, 4, 8, 16, 32, 64)
 
 

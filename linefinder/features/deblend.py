@@ -10,7 +10,6 @@ import numpy as np
 
 from .profiles import GAUSS_FWHM, GroupProblem, fit_groups
 
-
 MAX_GROUP = 6
 
 

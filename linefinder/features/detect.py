@@ -25,12 +25,31 @@ import numpy as np
 
 from ..errors import SpectrumFormatError
 from ..spectral.spectrum import prepare, segments
-from .candidates import exclusion, find_candidates, find_spikes, inflated_weights, new_features
-from .continuum import find_steps, fit_continuum as _fit_continuum, robust_noise, snap_steps
-from .deblend import (fit_all_groups, group_model, make_groups, merge_weak_blends, split_wide,
-                      sync_fits, usable)
+from .candidates import (
+    exclusion,
+    find_candidates,
+    find_spikes,
+    inflated_weights,
+    new_features,
+)
+from .continuum import find_steps, robust_noise, snap_steps
+from .continuum import fit_continuum as _fit_continuum
+from .deblend import (
+    fit_all_groups,
+    group_model,
+    make_groups,
+    merge_weak_blends,
+    split_wide,
+    sync_fits,
+    usable,
+)
 from .flags import Flag, has_flag
-from .table import EQUIVALENT_WIDTH_CONVENTION, FEATURE_COLUMNS, FeatureResult, feature_table
+from .table import (
+    EQUIVALENT_WIDTH_CONVENTION,
+    FEATURE_COLUMNS,
+    FeatureResult,
+    feature_table,
+)
 
 __all__ = ["find_features", "FeatureResult", "FEATURE_COLUMNS", "EQUIVALENT_WIDTH_CONVENTION"]
 

@@ -22,9 +22,9 @@ from ..spectral.spectrum import prepare
 from .candidates import find_spikes
 from .continuum import robust_noise
 from .flags import Flag
-from .table import EQUIVALENT_WIDTH_CONVENTION, FeatureResult, feature_table
 from .joint import fit_joint, refine_centres
 from .scales import GAUSS_FWHM, scale_peaks, scan_scales
+from .table import EQUIVALENT_WIDTH_CONVENTION, FeatureResult, feature_table
 
 __all__ = ["find_features_scales", "is_broad", "NOISE_FLOOR", "DEFAULT_FWHM_PX", "BROAD_KMS"]
 

@@ -8,9 +8,9 @@ builds the identification table, and `pipeline` (`identify`) runs these
 steps in order.
 """
 
-from .pipeline import identify, Identification, default_species
+from .matching import Assignment, assign
+from .pipeline import Identification, default_species, identify
 from .redshift import Solution, search_shift
-from .matching import assign, Assignment
 
 __all__ = ["identify", "Identification", "default_species", "Solution", "search_shift", "assign",
            "Assignment"]

@@ -28,24 +28,28 @@ import numpy as np
 from astropy import units as u
 from astropy.table import QTable
 
-from ..physics import constants as K
 from ..catalogue.build import build_catalogue
 from ..catalogue.companions import companion_lines
-from ..features.scales import scan_scales
 from ..catalogue.contaminants import sky_mask
-from ..spectral.doppler import C_KMS
-from ..catalogue.strengths import (expected_strengths, is_primary, multiplet_codes,
-                                 strength_assumption)
-from .table import append_at_z, fill, new_table, peaks_as_features
+from ..catalogue.strengths import (
+    expected_strengths,
+    is_primary,
+    multiplet_codes,
+    strength_assumption,
+)
+from ..features.flags import Flag, has_flag, join_flags
+from ..features.scales import scan_scales
 from ..io.line_lists import read_line_list
+from ..physics import constants as K
+from ..spectral.axis import observed_window, sorted_pixels, vacuum_ln
+from ..spectral.doppler import C_KMS
+from .hyperfine_line import read_hyperfine, with_hyperfine
 from .lyman_break import break_reading
 from .matching import assign, withdraw_unsupported
-from ..spectral.axis import observed_window, sorted_pixels, vacuum_ln
-from .redshift import _within, classify, refine, search_shift, solution_probability
-from .hyperfine_line import read_hyperfine, with_hyperfine
-from .single_line import reading_candidate, readings_of
 from .pixel_check import PixelReader, capped, support_status
-from ..features.flags import Flag, has_flag, join_flags
+from .redshift import _within, classify, refine, search_shift, solution_probability
+from .single_line import reading_candidate, readings_of
+from .table import append_at_z, fill, new_table, peaks_as_features
 
 __all__ = ["identify", "Identification", "default_species", "read_line_list"]
 

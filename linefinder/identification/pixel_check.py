@@ -37,7 +37,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 from astropy import units as u
-
 from scipy.ndimage import maximum_filter1d
 
 from ..spectral.medium import vacuum_to_air

@@ -13,10 +13,10 @@ from astropy.table import QTable
 from scipy.special import erf
 
 from ..catalogue.contaminants import sky_mask
-from ..spectral.doppler import C_KMS
-from .forced import bridge_crowded, choose_lines, measure_predicted
-from ..spectral.medium import vacuum_to_air
 from ..features.flags import Flag, has_flag
+from ..spectral.doppler import C_KMS
+from ..spectral.medium import vacuum_to_air
+from .forced import bridge_crowded, choose_lines, measure_predicted
 
 __all__ = ["new_table", "fill", "append_at_z", "peaks_as_features", "AT_Z_SNR"]
 

@@ -7,9 +7,9 @@ user's own lines; `tables` writes CSV, ECSV, JSON and Parquet without ever
 overwriting unasked.
 """
 
-from .read import read_input, read_spectrum, describe_input, is_peak_list
 from .line_lists import read_line_list
-from .tables import write_table, table_to_records
+from .read import describe_input, is_peak_list, read_input, read_spectrum
+from .tables import table_to_records, write_table
 
 __all__ = ["read_input", "read_spectrum", "describe_input", "is_peak_list", "read_line_list",
            "write_table", "table_to_records"]

@@ -17,10 +17,10 @@ from astropy import units as u
 from astropy.io import fits
 
 from ..errors import SpectrumFormatError, UnitsError
+from ..spectral.spectrum import SpectrumData
 from . import columns as roles
 from .columns import ERROR_ROLES, find_role, to_sigma
 from .units import parse_flux_unit, parse_spectral_unit
-from ..spectral.spectrum import SpectrumData
 
 __all__ = ["read_fits", "describe_fits", "is_fits"]
 
@@ -227,6 +227,23 @@ def describe_fits(path):
                             if _name(hdul[tabs[0]]) == "coadd" else " (the other tables hold the same data)"))
         lines.append(f"{n} spectrum/spectra readable (choose with --hdu and --index)")
     return lines
+
+
+def count_fits_spectra(path):
+    """How many spectra `read_fits` can read from `path` with ``index`` (no ``hdu``)."""
+    hdul = _open(path)
+    with hdul:
+        arms = _arms(hdul)
+        if arms:
+            return int(np.atleast_2d(hdul[f"{arms[0]}_FLUX"].data).shape[0])
+        tables = _preferred_tables(hdul, _spectrum_tables(hdul))
+        if tables:
+            return int(sum(_table_count(hdul[i]) for i in tables))
+        images = _spectrum_images(hdul)
+        if images:
+            return int(sum((hdul[i].data.shape[0] if hdul[i].data.ndim == 2 else 1)
+                           for i in images))
+    return 1
 
 
 def _table_count(h):

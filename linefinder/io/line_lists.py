@@ -5,8 +5,8 @@ from astropy import units as u
 from astropy.table import QTable
 
 from ..errors import SpectrumFormatError
-from .units import parse_spectral_unit, unit_from_label
 from ..spectral.medium import air_to_vacuum
+from .units import parse_spectral_unit, unit_from_label
 
 __all__ = ["read_line_list"]
 

@@ -5,15 +5,31 @@ from pathlib import Path
 from astropy.table import QTable
 
 from ..errors import SpectrumFormatError
-from .fits import describe_fits, is_fits, read_fits
-from .text import read_text
 from ..spectral.spectrum import SpectrumData
+from .fits import count_fits_spectra, describe_fits, is_fits, read_fits
+from .text import read_text
 
-__all__ = ["read_input", "read_spectrum", "describe_input", "is_peak_list"]
+__all__ = ["read_input", "read_spectrum", "describe_input", "is_peak_list", "count_spectra"]
 
 
 def is_peak_list(obj):
     return isinstance(obj, QTable) and "center" in obj.colnames
+
+
+def _is_fits_name(p):
+    return is_fits(p) or p.suffix.lower() in (".fits", ".fit", ".fts", ".fz") or \
+        p.name.lower().endswith(".fits.gz")
+
+
+def count_spectra(path):
+    """How many spectra `read_spectrum` can read from `path` (``index`` 0 .. n-1); 1 for a
+    text file.  Raises the reader's errors for a file that is no spectrum file."""
+    p = Path(path)
+    if not p.exists():
+        raise FileNotFoundError(2, "No such file", str(p))
+    if p.is_file() and p.stat().st_size and _is_fits_name(p):
+        return count_fits_spectra(p)
+    return 1
 
 
 def read_input(path, *, index=None, hdu=None, medium=None, columns=None, input_unit=None):
@@ -27,7 +43,7 @@ def read_input(path, *, index=None, hdu=None, medium=None, columns=None, input_u
         raise SpectrumFormatError(f"{p}: the file is empty")
     if medium not in (None, "air", "vacuum"):
         raise SpectrumFormatError(f"{p}: --medium must be air or vacuum, not {medium!r}")
-    if is_fits(p) or p.suffix.lower() in (".fits", ".fit", ".fts", ".fz") or p.name.lower().endswith(".fits.gz"):
+    if _is_fits_name(p):
         out = read_fits(p, index=index, hdu=hdu, medium=medium, input_unit=input_unit)
     else:
         if hdu is not None:

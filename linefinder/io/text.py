@@ -21,10 +21,10 @@ from astropy import units as u
 from astropy.table import QTable
 
 from ..errors import SpectrumFormatError, UnitsError
+from ..spectral.spectrum import SpectrumData
 from . import columns as roles
 from .columns import error_role, find_role, to_sigma
 from .units import parse_flux_unit, parse_spectral_unit, unit_from_label
-from ..spectral.spectrum import SpectrumData
 
 __all__ = ["read_text"]
 

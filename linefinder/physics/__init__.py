@@ -8,10 +8,16 @@ transition rates built from them (`transitions`).  CODATA constants come from
 species-independent work.  Nothing here knows about spectra.
 """
 
-from .species import Species, parse_species, to_roman, from_roman
-from .levels import binding_energy_hz, level_energy, level_table, level_label, enumerate_levels
-from .transitions import fine_components, multiplets, einstein_a, oscillator_strength
+from .levels import (
+           binding_energy_hz,
+           enumerate_levels,
+           level_energy,
+           level_label,
+           level_table,
+)
 from .radial import dipole_radial_integrals
+from .species import Species, from_roman, parse_species, to_roman
+from .transitions import einstein_a, fine_components, multiplets, oscillator_strength
 
 __all__ = ["Species", "parse_species", "to_roman", "from_roman", "binding_energy_hz",
            "level_energy", "level_table", "level_label", "enumerate_levels", "fine_components",

@@ -54,9 +54,9 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.constants as _sc
 
+from ..errors import SpeciesError
 from . import constants as K
 from .species import parse_species
-from ..errors import SpeciesError
 
 __all__ = ["NUCLEI", "MEASURED", "HyperfineLine", "fermi_interval_hz", "hyperfine_interval",
            "hyperfine_lines", "has_hyperfine", "spin_flip_rate"]

@@ -23,10 +23,10 @@ import numpy as np
 from astropy import units as u
 from astropy.table import QTable
 
-from . import constants as K
 from ..errors import QuantumNumberError
+from . import constants as K
 from .memo import Memo
-from .qed import ZETA3, bethe_log, g_se, g_vp, harmonic, _se_without_g
+from .qed import ZETA3, _se_without_g, bethe_log, g_se, g_vp, harmonic
 from .species import parse_species
 
 __all__ = ["binding_energy_hz", "level_energy", "level_table", "level_label",

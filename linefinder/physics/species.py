@@ -34,8 +34,8 @@ import re
 from dataclasses import dataclass
 from importlib import resources
 
-from . import constants as K
 from ..errors import SpeciesError
+from . import constants as K
 
 __all__ = ["Species", "parse_species", "to_roman", "from_roman"]
 

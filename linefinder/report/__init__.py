@@ -1,6 +1,6 @@
 """Reports of an identification: summary, tables, plots and one HTML page.
 """
 
-from .summary import summary, write_report, lyman_break_text
+from .summary import lyman_break_text, summary, write_report
 
 __all__ = ["summary", "write_report", "lyman_break_text"]

@@ -7,10 +7,10 @@ from pathlib import Path
 import numpy as np
 from astropy import units as u
 
-from ..spectral.doppler import C_KMS
 from ..errors import OutputExistsError
-from ..io.tables import json_default
 from ..features.flags import Flag, has_flag
+from ..io.tables import json_default
+from ..spectral.doppler import C_KMS
 
 __all__ = ["summary", "write_report", "lyman_break_text"]
 

@@ -6,8 +6,8 @@ tests; `scenarios` makes the bundled sample spectra of the demo and their
 truth files.
 """
 
-from .scenarios import write_samples, SAMPLES, sample_path
-from .suite import make_spectrum, make_noise_spectrum, random_parameters
+from .scenarios import SAMPLES, sample_path, write_samples
+from .suite import make_noise_spectrum, make_spectrum, random_parameters
 
 __all__ = ["write_samples", "SAMPLES", "sample_path", "make_spectrum", "make_noise_spectrum",
            "random_parameters"]

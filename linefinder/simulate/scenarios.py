@@ -30,9 +30,9 @@ from astropy.io import fits
 
 from ..catalogue.build import build_catalogue
 from ..catalogue.companions import COMPANION_LINES
+from ..features.profiles import GAUSS_FWHM
 from ..spectral.doppler import C_KMS
 from ..spectral.medium import air_to_vacuum, vacuum_to_air
-from ..features.profiles import GAUSS_FWHM
 
 __all__ = ["write_samples", "SAMPLES", "sample_path"]
 

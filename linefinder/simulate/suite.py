@@ -26,11 +26,11 @@ from astropy import units as u
 from ..catalogue.build import build_catalogue
 from ..catalogue.companions import COMPANION_LINES
 from ..catalogue.contaminants import SKY_LINES_AIR
-from ..spectral.doppler import C_KMS
 from ..catalogue.strengths import CASE_B_HBETA
-from ..identification.lyman_break import LYA_REST_VACUUM_AA, mean_transmission
-from ..spectral.medium import air_to_vacuum
 from ..features.profiles import GAUSS_FWHM
+from ..identification.lyman_break import LYA_REST_VACUUM_AA, mean_transmission
+from ..spectral.doppler import C_KMS
+from ..spectral.medium import air_to_vacuum
 from ..spectral.spectrum import SpectrumData
 
 __all__ = ["make_spectrum", "make_noise_spectrum", "random_parameters", "OTHER_LINES_VAC",

@@ -1,0 +1,5 @@
+"""``python -m linefinder``: the command line."""
+
+from .cli.main import run
+
+run()
